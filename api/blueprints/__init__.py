@@ -1,0 +1,1 @@
+"""One blueprint module per resource; each defines ``bp`` and is registered under /api/v1."""

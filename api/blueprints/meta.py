@@ -1,0 +1,22 @@
+"""Service metadata: health and the OpenAPI document."""
+
+from __future__ import annotations
+
+from flask import Blueprint, jsonify
+
+from stressmap import CAUTION, __version__
+from stressmap_api.openapi_doc import openapi_document
+
+__all__ = ["bp"]
+
+bp = Blueprint("meta", __name__)
+
+
+@bp.get("/health")
+def health():
+    return jsonify({"status": "ok", "version": __version__, "caution": CAUTION})
+
+
+@bp.get("/openapi.json")
+def openapi():
+    return jsonify(openapi_document())

@@ -1,0 +1,1 @@
+"""Package data: physics defaults (defaults.toml) and the fictional demo scenario."""

@@ -1,0 +1,18 @@
+"""Shared fixtures: a fresh app and client per test (Flask tutorial pattern), temp data dirs."""
+
+from __future__ import annotations
+
+import pytest
+
+
+@pytest.fixture
+def app(tmp_path):
+    from stressmap_api import create_app
+
+    app = create_app({"TESTING": True, "DATA_DIR": str(tmp_path / "data"), "LOAD_DEMO": False})
+    yield app
+
+
+@pytest.fixture
+def client(app):
+    return app.test_client()
