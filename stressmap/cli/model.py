@@ -1,0 +1,185 @@
+"""``stressmap build`` and ``stressmap predict``: build a plate model once, query it many times."""
+
+from __future__ import annotations
+
+import json
+import sys
+from pathlib import Path
+
+from stressmap.errors import InputError, problem
+
+__all__ = ["register", "parse_weights", "parse_bbox", "load_document"]
+
+
+def parse_weights(text: str | None) -> dict | None:
+    """Parse ``group=value,group=value`` into a dict.
+
+    Examples
+    --------
+    >>> parse_weights("ridge=1.5, subduction=0.5")
+    {'ridge': 1.5, 'subduction': 0.5}
+    >>> parse_weights(None) is None
+    True
+    """
+    if not text:
+        return None
+    out: dict = {}
+    for item in text.split(","):
+        name, sep, value = item.partition("=")
+        name = name.strip()
+        try:
+            if not sep or not name:
+                raise ValueError
+            out[name] = float(value)
+        except ValueError:
+            raise InputError(f"cannot read weight {item.strip()!r}: use group=value,...",
+                             [problem("expected group=value pairs separated by commas",
+                                      field="--weights")]) from None
+    return out
+
+
+def parse_bbox(text: str) -> tuple[float, float, float, float]:
+    """Parse ``W,S,E,N`` in degrees.
+
+    Examples
+    --------
+    >>> parse_bbox("-10,40,5.5,50")
+    (-10.0, 40.0, 5.5, 50.0)
+    """
+    parts = text.split(",")
+    try:
+        if len(parts) != 4:
+            raise ValueError
+        w, s, e, n = (float(p) for p in parts)
+    except ValueError:
+        raise InputError(f"cannot read bounding box {text!r}: use W,S,E,N in degrees",
+                         [problem("expected four numbers W,S,E,N", field="--bbox")]) from None
+    return w, s, e, n
+
+
+def load_document(path: str, params: str | None = None) -> dict:
+    """Read a plate model document (JSON), or a boundary file (GeoJSON/GeoPackage) plus params."""
+    p = Path(path)
+    if not p.is_file():
+        raise InputError(f"model file not found: {path}", [problem("file not found", field=path)])
+    if params is not None or p.suffix.lower() in (".gpkg", ".geojson"):
+        from stressmap.plate_io import load_plate_files
+
+        return load_plate_files(p, params)
+    try:
+        return json.loads(p.read_text(encoding="utf-8"))
+    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise InputError(f"{p.name} is not valid JSON: {exc}",
+                         [problem(f"not valid JSON: {exc}", field=p.name)]) from None
+
+
+def _progress_bar(description: str):
+    from tqdm import tqdm
+
+    bar = tqdm(total=100, desc=description, unit="%", file=sys.stderr, leave=False,
+               bar_format="{desc}: {percentage:3.0f}% |{bar}| {postfix}")
+
+    def update(fraction: float, message: str = "") -> None:
+        bar.n = round(100 * max(0.0, min(1.0, float(fraction))))
+        bar.set_postfix_str(message)
+        bar.refresh()
+
+    return bar, update
+
+
+def _cmd_build(args) -> int:
+    from stressmap.model import build_model
+    from stressmap.modeldir import write_model
+
+    document = load_document(args.model, args.params)
+    bar, update = _progress_bar("build")
+    try:
+        model = build_model(document, progress=update)
+    finally:
+        bar.close()
+    out = write_model(model, args.output)
+    s = model.summary
+    print(f"built {s.get('name', '')!r} -> {out}")
+    stats = s.get("mesh", {})
+    if stats:
+        print(f"  mesh: {stats.get('nodes')} nodes, {stats.get('triangles')} triangles, "
+              f"min angle {stats.get('min_angle_deg', float('nan')):.1f} deg")
+    print(f"  load groups: {', '.join(model.groups)}")
+    return 0
+
+
+def _cmd_predict(args) -> int:
+    from stressmap import CAUTION, export
+    from stressmap.model import predict_grid, predict_points
+    from stressmap.modeldir import read_model
+    from stressmap.points_io import read_points
+
+    model = read_model(args.model_dir)
+    weights = parse_weights(args.weights)
+    out = Path(args.output)
+    fmt = out.suffix.lower().lstrip(".")
+    if fmt not in ("geojson", "json", "csv", "nc"):
+        raise InputError(f"unsupported output type .{fmt}: use .geojson, .csv or .nc",
+                         [problem("output must end in .geojson, .csv or .nc", field="-o")])
+    meta = {
+        "caution": CAUTION,
+        "model_name": model.summary.get("name", ""),
+        "build_time": model.summary.get("build_time", ""),
+    }
+    if args.points:
+        lon, lat, props = read_points(args.points)
+        ds = predict_points(model, lon, lat, weights=weights)
+        if fmt in ("geojson", "json"):
+            text = json.dumps(export.points_geojson(ds, props, meta), allow_nan=False)
+            out.write_text(text, encoding="utf-8")
+        elif fmt == "csv":
+            out.write_text(export.points_csv(ds, meta, props), encoding="utf-8")
+        else:
+            out.write_bytes(export.netcdf_bytes(ds, meta))
+        n_in = int(ds["inside"].sum())
+        print(f"predicted {n_in} of {lon.size} points inside the plate -> {out}")
+    else:
+        if args.spacing_km is None:
+            raise InputError("--bbox needs --spacing-km", [problem("required with --bbox", field="--spacing-km")])
+        ds = predict_grid(model, bbox=parse_bbox(args.bbox), spacing_km=args.spacing_km, weights=weights)
+        if fmt in ("geojson", "json"):
+            out.write_text(json.dumps(export.grid_geojson(ds, meta), allow_nan=False), encoding="utf-8")
+        elif fmt == "csv":
+            out.write_text(export.grid_csv(ds, meta), encoding="utf-8")
+        else:
+            out.write_bytes(export.grid_netcdf_bytes(ds, meta))
+        print(f"predicted a {ds.sizes['lat']} x {ds.sizes['lon']} grid "
+              f"({int(ds['inside'].sum())} nodes inside the plate) -> {out}")
+    print(f"note: {CAUTION}")
+    return 0
+
+
+def register(sub) -> None:
+    p = sub.add_parser(
+        "build",
+        help="build a plate model: mesh, solve every load group, store unit stress fields",
+        description="Build a plate model document into a model directory (definition, unit stress "
+                    "fields per load group as netCDF, summary). Every later prediction reuses it.",
+    )
+    p.add_argument("model", metavar="MODEL", help="plate model document (.json), or a boundary "
+                   "file (.geojson/.gpkg) with --params")
+    p.add_argument("--params", metavar="FILE", help="TOML/JSON parameters for a boundary file "
+                   "(name, provinces, ridge_push, drag, sheet, mesh)")
+    p.add_argument("-o", "--output", required=True, metavar="DIR", help="model directory to write")
+    p.set_defaults(handler=_cmd_build)
+
+    q = sub.add_parser(
+        "predict",
+        help="predict SHmax azimuth, regime and magnitudes at points or on a grid",
+        description="Predict the tectonic stress of a built model at points (--points) or on a "
+                    "lon/lat grid (--bbox with --spacing-km). Output type follows the -o suffix.",
+    )
+    q.add_argument("model_dir", metavar="DIR", help="model directory written by `stressmap build`")
+    where = q.add_mutually_exclusive_group(required=True)
+    where.add_argument("--points", metavar="FILE", help="CSV with lon,lat columns, or GeoJSON/GeoPackage points")
+    where.add_argument("--bbox", metavar="W,S,E,N", help="grid bounding box in degrees")
+    q.add_argument("--spacing-km", type=float, metavar="K", help="grid spacing in km (with --bbox)")
+    q.add_argument("--weights", metavar="GROUP=VALUE,...", help="scale load groups (default 1 each)")
+    q.add_argument("-o", "--output", required=True, metavar="OUT",
+                   help="output file: .geojson, .csv or .nc (CF netCDF)")
+    q.set_defaults(handler=_cmd_predict)
