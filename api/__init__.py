@@ -34,6 +34,9 @@ DEFAULTS: dict = {
     "MAX_MESH_NODES": 400_000,
     "REQUEST_TIME_LIMIT_S": 30.0,
     "JOB_WORKERS": 2,
+    "JOB_EXECUTOR": "process",  # "process" (isolated builds) or "thread"
+    "MAX_QUEUED_JOBS": 32,
+    "MODEL_CACHE_SIZE": 8,  # loaded models kept in memory (LRU)
     "API_TOKEN": "",  # empty: no token needed; set via STRESSMAP_API_TOKEN, never in the repo
     "READS_NEED_TOKEN": False,
     "CORS_ORIGINS": [],
@@ -78,6 +81,12 @@ def create_app(test_config: dict | None = None) -> Flask:
     app.json_provider_class = NumpyJSONProvider
     app.json = NumpyJSONProvider(app)
     register_error_handlers(app)
+
+    from stressmap_api import auth, jobs, store
+
+    store.init_app(app)  # data directory, SQLite index, restart recovery
+    jobs.init_app(app)  # bounded background worker pool
+    auth.init_app(app)  # bearer token for reads (if configured) and CORS allow-list
 
     from stressmap_api import blueprints
 

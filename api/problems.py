@@ -49,6 +49,17 @@ def register_error_handlers(app: Flask) -> None:
     def _input_error(exc: InputError):
         return problem_response(422, "Invalid input", exc.message, exc.problems)
 
+    from stressmap_api.jobs import JobQueueFull
+    from stressmap_api.store import ModelNotReady
+
+    @app.errorhandler(ModelNotReady)
+    def _not_ready(exc: ModelNotReady):
+        return problem_response(409, "Model not ready", str(exc))
+
+    @app.errorhandler(JobQueueFull)
+    def _queue_full(exc: JobQueueFull):
+        return problem_response(503, "Too many jobs", str(exc), headers={"Retry-After": "30"})
+
     @app.errorhandler(NotFoundError)
     def _not_found(exc: NotFoundError):
         return problem_response(404, "Not Found", str(exc))

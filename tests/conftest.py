@@ -11,6 +11,7 @@ def app(tmp_path):
 
     app = create_app({"TESTING": True, "DATA_DIR": str(tmp_path / "data"), "LOAD_DEMO": False})
     yield app
+    app.extensions["stressmap_jobs"].shutdown()  # end the app's worker pool (service owner: V)
 
 
 @pytest.fixture
