@@ -1,0 +1,652 @@
+"""Boundary-conforming triangulation of a spherical polygon (the plate), our own mesher.
+
+Method (all steps vectorised; Python loops only run over a handful of iterations, size levels,
+refinement items or ring arcs):
+
+1. **Projection.** Work in the stereographic plane about the plate centre (conformal, so triangle
+   shapes survive the map back to the sphere; plane lengths are sphere lengths times
+   ``1 + r**2/4``). The target edge length in the plane is the sphere size times that scale,
+   so the mesh on the sphere has the requested size everywhere.
+2. **Size function** (km on the sphere): ``mesh.edge_km`` everywhere, finer near each refinement
+   point (within ``radius_km``) or polygon, growing by ``mesh.grading`` km per km away from it;
+   also finer near ring vertices whose adjacent arcs are shorter than the target size, so short
+   boundary arcs get well-shaped neighbours.
+3. **Boundary nodes.** Every ring vertex is a node; nodes are added along each great-circle arc
+   so that their spacing follows the size function (equal steps of the integral of 1/size).
+4. **Interior nodes.** Equilateral (hexagonal) lattices whose spacing steps by a factor 0.85
+   between size levels; each point is kept where the target size falls in its level's band, is
+   inside the polygon and is not too close to the boundary; points too close across a level
+   change are thinned.
+5. **Triangulation.** ``scipy.spatial.Delaunay``; interior points that encroach a boundary edge
+   (lie in its diametral circle) are removed and boundary edges encroached by other boundary
+   nodes are split, which guarantees every boundary edge is a Delaunay edge; triangles whose
+   centroid is outside the polygon are dropped.
+6. **Smoothing.** A few force-based relaxation steps (bars repel when shorter than the local
+   target, boundary nodes fixed), then a final triangulation.
+7. Map back to the sphere; triangles counter-clockwise seen from outside.
+
+Elements are flat facets between nodes on the sphere. Provinces are assigned **by element
+centroid** (the province containing the centroid; later provinces win where they overlap);
+province outlines are not forced into the mesh.
+"""
+
+from __future__ import annotations
+
+import logging
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from stressmap import sphere
+from stressmap.constants import EARTH_RADIUS_KM
+
+__all__ = ["Mesh", "mesh_plate", "triangle_angles_deg", "facet_areas_km2"]
+
+log = logging.getLogger(__name__)
+
+_RHO = 0.85  # lattice spacing ratio between size levels
+_R = EARTH_RADIUS_KM
+
+
+@dataclass(frozen=True)
+class Mesh:
+    """Triangle mesh of a plate on the sphere (arrays fixed dtype, C-contiguous, read-only).
+
+    Attributes
+    ----------
+    xyz : ndarray (n, 3) float64
+        Node unit vectors.
+    lonlat : ndarray (n, 2) float64
+        Node longitude in [-180, 180) and latitude, degrees.
+    triangles : ndarray (m, 3) int64
+        Node indices, counter-clockwise seen from outside the sphere.
+    boundary_edges : ndarray (k, 2) int64
+        Node pairs along the ring in ring order, interior on the left.
+    edge_segment : ndarray (k,) int64
+        Index into ``plate.segments`` of each boundary edge.
+    element_province : ndarray (m,) int64
+        Index into ``plate.provinces`` by element centroid; -1 = none.
+    element_stiffness : ndarray (m,) float64
+        Relative stiffness of each element (province stiffness, else 1.0).
+    stats : dict
+        nodes, triangles, min_angle_deg, min_angle_away_from_corners_deg, max_angle_deg,
+        area_km2 (sum of flat facet areas), exact_area_km2 (spherical polygon), area_error
+        (relative), edge_km (target), mean_edge_km, seconds.
+    """
+
+    xyz: np.ndarray
+    lonlat: np.ndarray
+    triangles: np.ndarray
+    boundary_edges: np.ndarray
+    edge_segment: np.ndarray
+    element_province: np.ndarray
+    element_stiffness: np.ndarray
+    stats: dict = field(default_factory=dict)
+
+    def __post_init__(self):
+        for name, dtype in (("xyz", np.float64), ("lonlat", np.float64), ("triangles", np.int64),
+                            ("boundary_edges", np.int64), ("edge_segment", np.int64),
+                            ("element_province", np.int64), ("element_stiffness", np.float64)):
+            a = np.array(getattr(self, name), dtype=dtype, order="C", copy=True)
+            a.setflags(write=False)
+            object.__setattr__(self, name, a)
+
+    @property
+    def n_nodes(self) -> int:
+        return len(self.xyz)
+
+    @property
+    def n_triangles(self) -> int:
+        return len(self.triangles)
+
+
+# --------------------------------------------------------------------------------------------
+# geometry helpers
+
+
+def triangle_angles_deg(xyz, triangles) -> np.ndarray:
+    """Interior angles (m, 3) in degrees of flat triangles with 3-D corner points.
+
+    Examples
+    --------
+    >>> p = np.array([[0.0, 0, 0], [1, 0, 0], [0, 1, 0]])
+    >>> triangle_angles_deg(p, np.array([[0, 1, 2]])).round(6)
+    array([[90., 45., 45.]])
+    """
+    p = np.asarray(xyz, dtype=float)[np.asarray(triangles)]
+    out = np.empty(p.shape[:2])
+    for k in range(3):
+        a = p[:, (k + 1) % 3] - p[:, k]
+        b = p[:, (k + 2) % 3] - p[:, k]
+        out[:, k] = np.degrees(np.arctan2(np.linalg.norm(np.cross(a, b), axis=-1),
+                                          np.sum(a * b, axis=-1)))
+    return out
+
+
+def facet_areas_km2(xyz, triangles, radius_km: float = _R) -> np.ndarray:
+    """Signed areas (km^2) of the flat facets; positive when counter-clockwise seen from outside.
+
+    Examples
+    --------
+    >>> p = sphere.lonlat_to_xyz([0.0, 1.0, 0.0], [0.0, 0.0, 1.0])
+    >>> a = facet_areas_km2(p, np.array([[0, 1, 2], [0, 2, 1]]))
+    >>> bool(a[0] > 0), bool(np.isclose(a[0], -a[1]))
+    (True, True)
+    """
+    p = np.asarray(xyz, dtype=float)[np.asarray(triangles)]
+    n = np.cross(p[:, 1] - p[:, 0], p[:, 2] - p[:, 0])
+    c = p.sum(axis=1)
+    return 0.5 * np.linalg.norm(n, axis=-1) * np.sign(np.sum(n * c, axis=-1)) * radius_km**2
+
+
+# --------------------------------------------------------------------------------------------
+# size function
+
+
+class _Size:
+    """Target edge length: on the sphere (km) and in the stereographic plane (plane km)."""
+
+    def __init__(self, plate, edge_km: float, ring_xyz: np.ndarray, centre: np.ndarray):
+        import shapely
+
+        self.edge = float(edge_km)
+        self.grading = float(plate.mesh.get("grading", 0.25))
+        self.centre = centre
+        self.points = []  # (xyz, fine_km, radius_km)
+        self.polygons = []  # (prepared shapely polygon in plane km, fine_km)
+        for item in plate.mesh.get("refinement") or []:
+            fine = min(float(item["edge_km"]), self.edge)
+            if "point" in item:
+                xyz = sphere.lonlat_to_xyz(*item["point"])
+                self.points.append((xyz, fine, float(item.get("radius_km", 0.0))))
+            else:
+                ring = np.asarray(item["polygon"], dtype=float)
+                x, y = _to_plane(sphere.lonlat_to_xyz(ring[:, 0], ring[:, 1]), centre)
+                poly = shapely.Polygon(np.column_stack([x, y]))
+                if not poly.is_valid:
+                    poly = poly.buffer(0)
+                buf = float(item.get("radius_km", 0.0))
+                if buf > 0:
+                    poly = poly.buffer(buf)
+                shapely.prepare(poly)
+                self.polygons.append((poly, fine))
+        # ring vertices next to short arcs: local feature size
+        arc = _R * sphere.angle_between(ring_xyz, np.roll(ring_xyz, -1, axis=0))
+        lfs = np.minimum(arc, np.roll(arc, 1))
+        short = lfs < self.edge
+        self.vertex_xyz = ring_xyz[short]
+        self.vertex_fine = np.maximum(lfs[short], 1e-3)
+        self.tree = None
+        if short.any():
+            from scipy.spatial import cKDTree
+
+            self.tree = cKDTree(self.vertex_xyz)
+        fines = [self.edge] + [f for _, f, _ in self.points] + [f for _, f in self.polygons]
+        if len(self.vertex_fine):
+            fines.append(float(self.vertex_fine.min()))
+        self.min_km = min(fines)
+
+    def sphere_km(self, xyz: np.ndarray, plane=None) -> np.ndarray:
+        import shapely
+
+        h = np.full(xyz.shape[:-1], self.edge)
+        g = self.grading
+        for pxyz, fine, radius in self.points:
+            d = _R * sphere.angle_between(xyz, pxyz)
+            np.minimum(h, fine + g * np.maximum(d - radius, 0.0), out=h)
+        if self.polygons:
+            if plane is None:
+                plane = _to_plane(xyz, self.centre)
+            x, y = plane
+            scale = sphere.stereographic_scale(x / _R, y / _R)
+            pts = shapely.points(x, y)
+            for poly, fine in self.polygons:
+                d = shapely.distance(poly, pts) / scale
+                np.minimum(h, fine + g * d, out=h)
+        if self.tree is not None:
+            k = min(8, len(self.vertex_fine))
+            chord, idx = self.tree.query(xyz.reshape(-1, 3), k=k)
+            chord = chord.reshape(len(chord), -1)
+            idx = idx.reshape(len(idx), -1)
+            d = 2.0 * _R * np.arcsin(np.minimum(chord / 2.0, 1.0))
+            hv = np.min(self.vertex_fine[idx] + g * d, axis=1).reshape(h.shape)
+            np.minimum(h, hv, out=h)
+        return h
+
+    def plane_km(self, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+        xyz = sphere.stereographic_inverse(x / _R, y / _R, self.centre)
+        return self.sphere_km(xyz, plane=(x, y)) * sphere.stereographic_scale(x / _R, y / _R)
+
+
+def _to_plane(xyz, centre):
+    x, y = sphere.stereographic_forward(xyz, centre)
+    return x * _R, y * _R
+
+
+# --------------------------------------------------------------------------------------------
+# boundary
+
+
+def _boundary_nodes(ring_xyz: np.ndarray, size: _Size):
+    """Nodes along the ring: returns (xyz (k, 3), arc index (k,), fraction along the arc (k,))."""
+    n = len(ring_xyz)
+    a = ring_xyz
+    b = np.roll(ring_xyz, -1, axis=0)
+    length = _R * sphere.angle_between(a, b)
+    intervals = np.ceil(length / (size.min_km / 4.0)).astype(np.int64) + 1
+    counts = intervals + 1
+    offsets = np.concatenate([[0], np.cumsum(counts)[:-1]])
+    arc = np.repeat(np.arange(n), counts)
+    local = np.arange(counts.sum()) - offsets[arc]
+    t = local / intervals[arc]
+    pts = sphere.slerp(a[arc], b[arc], t)
+    dens = 1.0 / size.sphere_km(pts)
+    step = length[arc] / intervals[arc]
+    incr = 0.5 * (dens[1:] + dens[:-1]) * step[:-1]
+    incr[arc[1:] != arc[:-1]] = 0.0
+    cum = np.concatenate([[0.0], np.cumsum(incr)])
+    total = cum[offsets + counts - 1] - cum[offsets]
+    nseg = np.maximum(1, np.round(total)).astype(np.int64)
+    # targets strictly inside each arc: j / nseg * total, j = 1..nseg-1
+    n_inner = nseg - 1
+    arc_in = np.repeat(np.arange(n), n_inner)
+    j = np.arange(n_inner.sum()) - np.repeat(np.concatenate([[0], np.cumsum(n_inner)[:-1]]), n_inner)
+    target = cum[offsets[arc_in]] + (j + 1) / nseg[arc_in] * total[arc_in]
+    tglob = arc + t
+    # cum is non-decreasing; interpolate the global arc parameter at the targets
+    tg = np.interp(target, cum, tglob)
+    tg = np.clip(tg, arc_in + 1e-9, arc_in + 1 - 1e-9)
+    key = np.concatenate([np.arange(n, dtype=float), tg])
+    order = np.argsort(key, kind="stable")
+    key = key[order]
+    arc_of = np.floor(key).astype(np.int64)
+    frac = key - arc_of
+    xyz = sphere.slerp(a[arc_of], b[arc_of], frac)
+    xyz[frac == 0.0] = a[arc_of[frac == 0.0]]
+    return xyz, arc_of, frac
+
+
+def _split_boundary(bxyz, barc, bfrac, which, ring_xyz):
+    """Insert the arc midpoint after each boundary edge in ``which`` (edge i = node i -> i+1)."""
+    n = len(bxyz)
+    nxt = (which + 1) % n
+    a_arc = barc[which]
+    f0 = bfrac[which]
+    f1 = np.where(barc[nxt] == a_arc, bfrac[nxt], 1.0)
+    fm = 0.5 * (f0 + f1)
+    a = ring_xyz[a_arc]
+    b = ring_xyz[(a_arc + 1) % len(ring_xyz)]
+    mid = sphere.slerp(a, b, fm)
+    key = np.concatenate([barc + bfrac, a_arc + fm])
+    order = np.argsort(key, kind="stable")
+    return (np.concatenate([bxyz, mid])[order], np.concatenate([barc, a_arc])[order],
+            np.concatenate([bfrac, fm])[order])
+
+
+# --------------------------------------------------------------------------------------------
+# interior
+
+
+def _hex_lattice(x0, y0, x1, y1, s):
+    """Equilateral lattice points with spacing s covering [x0, x1] x [y0, y1]."""
+    dy = s * np.sqrt(3.0) / 2.0
+    nx = int(np.ceil((x1 - x0) / s)) + 2
+    ny = int(np.ceil((y1 - y0) / dy)) + 2
+    if nx * ny > 40_000_000:
+        raise MemoryError("lattice too large")
+    iy, ix = np.divmod(np.arange(nx * ny), nx)
+    x = x0 - s + ix * s + (iy % 2) * (s / 2.0)
+    y = y0 - dy + iy * dy
+    return x, y
+
+
+def _interior_points(poly, bxy, size: _Size, base: float):
+    """Lattice points inside the polygon, in size bands; returns (x, y) in plane km."""
+    import shapely
+    from scipy.spatial import cKDTree
+
+    x0, y0, x1, y1 = poly.bounds
+    # plane sizes along the boundary and at a coarse sample give the range of levels
+    gx, gy = _hex_lattice(x0, y0, x1, y1, max(x1 - x0, y1 - y0) / 60.0)
+    inside = shapely.contains_xy(poly, gx, gy)
+    hs = np.concatenate([size.plane_km(gx[inside], gy[inside]), size.plane_km(bxy[:, 0], bxy[:, 1])])
+    kmax = int(np.ceil(np.log(size.min_km * 0.999 / base) / np.log(_RHO))) + 1
+    kmin = int(np.floor(np.log(hs.max() * 1.001 / base) / np.log(_RHO)))
+    kmin = min(kmin, 0)
+    kmax = max(kmax, 1)
+    xs, ys, hp = [], [], []
+    # regions of the fine levels: disks around refinement sources (plane km, generous)
+    for k in range(kmin, kmax):
+        s = base * _RHO**k
+        upper = s / _RHO
+        if k <= 0:
+            boxes = [(x0, y0, x1, y1)]
+        else:
+            boxes = _fine_boxes(size, upper, (x0, y0, x1, y1))
+        for bx0, by0, bx1, by1 in boxes:
+            x, y = _hex_lattice(bx0, by0, bx1, by1, s)
+            h = size.plane_km(x, y)
+            band = (h >= s) & (h < upper) if k < kmax - 1 else (h < upper)
+            if k == kmin:
+                band = h >= (s if k < kmax - 1 else 0.0)
+            x, y, h = x[band], y[band], h[band]
+            inside = shapely.contains_xy(poly, x, y)
+            xs.append(x[inside])
+            ys.append(y[inside])
+            hp.append(h[inside])
+    x = np.concatenate(xs)
+    y = np.concatenate(ys)
+    h = np.concatenate(hp)
+    pts = np.column_stack([x, y])
+    # not too close to the boundary
+    bt = cKDTree(bxy)
+    d, _ = bt.query(pts)
+    keep = d > 0.55 * h
+    pts, h = pts[keep], h[keep]
+    # thin points that are too close (across level changes)
+    if len(pts) > 1:
+        tree = cKDTree(pts)
+        dd, ii = tree.query(pts, k=min(7, len(pts)))
+        close = (dd[:, 1:] < 0.6 * np.minimum(h[:, None], h[ii[:, 1:]])) & (ii[:, 1:] < np.arange(len(pts))[:, None])
+        drop = close.any(axis=1)
+        pts, h = pts[~drop], h[~drop]
+    return pts
+
+
+def _fine_boxes(size: _Size, upper: float, bounds):
+    """Plane boxes that contain every place where the plane size is below ``upper``."""
+    x0, y0, x1, y1 = bounds
+    g = size.grading
+    boxes = []
+    srcs = []
+    for pxyz, fine, radius in size.points:
+        srcs.append((pxyz, fine, radius))
+    for xyz, fine in zip(size.vertex_xyz, size.vertex_fine):
+        srcs.append((xyz, float(fine), 0.0))
+    # the plane scale is >= 1, so sphere size below upper is necessary; reach in sphere km
+    scale_max = float(sphere.stereographic_scale((x1 - x0 + abs(x0)) / _R, (y1 - y0 + abs(y0)) / _R))
+    if srcs:
+        pxyz = np.array([s[0] for s in srcs])
+        fine = np.array([s[1] for s in srcs])
+        radius = np.array([s[2] for s in srcs])
+        reach = np.maximum((upper - fine) / g, 0.0) + radius
+        ok = fine < upper
+        px, py = _to_plane(pxyz[ok], size.centre)
+        r = reach[ok] * scale_max * 1.05 + upper
+        if ok.any():
+            bx0 = np.maximum(px - r, x0)
+            bx1 = np.minimum(px + r, x1)
+            by0 = np.maximum(py - r, y0)
+            by1 = np.minimum(py + r, y1)
+            good = (bx0 < bx1) & (by0 < by1)
+            boxes += list(zip(bx0[good], by0[good], bx1[good], by1[good]))
+    for poly, fine in size.polygons:
+        if fine < upper:
+            r = (upper - fine) / g * scale_max * 1.05 + upper
+            a, b, c, d = poly.bounds
+            boxes.append((max(a - r, x0), max(b - r, y0), min(c + r, x1), min(d + r, y1)))
+    return _merge_boxes(boxes)
+
+
+def _merge_boxes(boxes):
+    """Merge overlapping boxes (few boxes; the loop is over boxes, not points)."""
+    boxes = [list(b) for b in boxes]
+    merged = True
+    while merged and len(boxes) > 1:
+        merged = False
+        out = []
+        for b in boxes:
+            for o in out:
+                if b[0] <= o[2] and o[0] <= b[2] and b[1] <= o[3] and o[1] <= b[3]:
+                    o[0], o[1] = min(o[0], b[0]), min(o[1], b[1])
+                    o[2], o[3] = max(o[2], b[2]), max(o[3], b[3])
+                    merged = True
+                    break
+            else:
+                out.append(b)
+        boxes = out
+    return [tuple(b) for b in boxes]
+
+
+# --------------------------------------------------------------------------------------------
+# triangulation
+
+
+def _encroached(bxy, pts):
+    """Boundary-edge encroachment: (edges encroached by boundary nodes, interior points to drop)."""
+    from scipy.spatial import cKDTree
+
+    nb = len(bxy)
+    a = bxy
+    b = np.roll(bxy, -1, axis=0)
+    mid = 0.5 * (a + b)
+    rad = 0.5 * np.linalg.norm(b - a, axis=1)
+    rmax = rad.max()
+    drop = np.zeros(len(pts), dtype=bool)
+    if len(pts):
+        tree = cKDTree(pts)
+        # candidates within the largest radius, then exact test per pair
+        lists = tree.query_ball_point(mid, rad * (1 - 1e-9))
+        lens = np.fromiter((len(v) for v in lists), dtype=np.int64, count=nb)
+        if lens.sum():
+            idx = np.concatenate([np.asarray(v, dtype=np.int64) for v in lists if v])
+            drop[idx] = True
+    btree = cKDTree(bxy)
+    lists = btree.query_ball_point(mid, rad * (1 - 1e-7))
+    bad = np.zeros(nb, dtype=bool)
+    lens = np.fromiter((len(v) for v in lists), dtype=np.int64, count=nb)
+    if lens.sum():
+        e = np.repeat(np.arange(nb), lens)
+        q = np.concatenate([np.asarray(v, dtype=np.int64) for v in lists if v])
+        own = (q == e) | (q == (e + 1) % nb)
+        bad[np.unique(e[~own])] = True
+    del rmax
+    return np.flatnonzero(bad), drop
+
+
+def _delaunay_inside(p, poly):
+    import shapely
+    from scipy.spatial import Delaunay
+
+    tri = Delaunay(p).simplices.astype(np.int64)
+    c = p[tri].mean(axis=1)
+    inside = shapely.contains_xy(poly, c[:, 0], c[:, 1])
+    return tri[inside]
+
+
+def _edges(tri):
+    e = np.concatenate([tri[:, [0, 1]], tri[:, [1, 2]], tri[:, [2, 0]]])
+    e.sort(axis=1)
+    return np.unique(e, axis=0)
+
+
+def _smooth(p, tri, nfixed, size: _Size, poly, iterations: int):
+    """Force-based relaxation (bars repel below the local target); nodes < nfixed stay put."""
+    import shapely
+
+    edges = _edges(tri)
+    n = len(p)
+    i, j = edges[:, 0], edges[:, 1]
+    for _ in range(iterations):
+        bars = p[j] - p[i]
+        length = np.linalg.norm(bars, axis=1)
+        mid = 0.5 * (p[i] + p[j])
+        hbar = size.plane_km(mid[:, 0], mid[:, 1])
+        l0 = hbar * 1.2 * np.sqrt(np.sum(length**2) / np.sum(hbar**2))
+        force = np.maximum(l0 - length, 0.0) / np.maximum(length, 1e-12)
+        fvec = force[:, None] * bars
+        ftot = np.zeros_like(p)
+        for d in range(2):
+            ftot[:, d] = np.bincount(j, fvec[:, d], n) - np.bincount(i, fvec[:, d], n)
+        ftot[:nfixed] = 0.0
+        step = 0.2 * ftot
+        # limit the move to a fraction of the local size
+        hloc = size.plane_km(p[:, 0], p[:, 1])
+        mag = np.linalg.norm(step, axis=1)
+        lim = 0.2 * hloc
+        step *= np.minimum(1.0, lim / np.maximum(mag, 1e-300))[:, None]
+        p = p + step
+    # interior nodes that left the polygon are dropped
+    inside = shapely.contains_xy(poly, p[:, 0], p[:, 1])
+    inside[:nfixed] = True
+    return p, inside
+
+
+# --------------------------------------------------------------------------------------------
+
+
+def mesh_plate(plate, edge_km: float | None = None, smoothing_iterations: int = 8) -> Mesh:
+    """Triangulate a plate (see the module docstring for the method).
+
+    Parameters
+    ----------
+    plate : stressmap.plate.PlateModel
+    edge_km : float, optional
+        Target edge length on the sphere (km); default ``plate.mesh["edge_km"]``. Refinements
+        of the document keep their own (finer) sizes.
+    smoothing_iterations : int
+        Relaxation steps before the final triangulation.
+
+    Returns
+    -------
+    Mesh
+
+    Examples
+    --------
+    >>> import json, importlib.resources
+    >>> from stressmap.plate import parse_plate
+    >>> doc = json.loads(importlib.resources.files("stressmap.data")
+    ...                  .joinpath("demo_plate.json").read_text())
+    >>> m = mesh_plate(parse_plate(doc), edge_km=100.0)
+    >>> bool(m.stats["min_angle_away_from_corners_deg"] >= 20.0), abs(m.stats["area_error"]) < 1e-3
+    (True, True)
+    """
+    import shapely
+
+    t0 = time.perf_counter()
+    edge = float(edge_km if edge_km is not None else plate.mesh["edge_km"])
+    if not np.isfinite(edge) or edge <= 0:
+        from stressmap.errors import InputError, problem
+
+        raise InputError(f"edge_km must be a positive number, got {edge_km!r}",
+                         [problem(f"edge_km must be a positive number, got {edge_km!r}", field="edge_km")])
+    centre = np.asarray(plate.centre_xyz, dtype=float)
+    ring_xyz = np.asarray(plate.ring_xyz, dtype=float)
+    size = _Size(plate, edge, ring_xyz, centre)
+
+    bxyz, barc, bfrac = _boundary_nodes(ring_xyz, size)
+    bxy = np.column_stack(_to_plane(bxyz, centre))
+    poly = shapely.Polygon(bxy)
+    shapely.prepare(poly)
+    base = edge  # plane spacing at the centre (scale 1)
+    pts = _interior_points(poly, bxy, size, base)
+
+    # encroachment: split encroached boundary edges, drop encroaching interior points
+    for _ in range(12):
+        bad, drop = _encroached(bxy, pts)
+        pts = pts[~drop]
+        if not len(bad):
+            break
+        bxyz, barc, bfrac = _split_boundary(bxyz, barc, bfrac, bad, ring_xyz)
+        bxy = np.column_stack(_to_plane(bxyz, centre))
+    nb = len(bxy)
+    poly = shapely.Polygon(bxy)
+    shapely.prepare(poly)
+
+    p = np.vstack([bxy, pts])
+    tri = _delaunay_inside(p, poly)
+    if smoothing_iterations:
+        p, keep = _smooth(p, tri, nb, size, poly, smoothing_iterations)
+        p = p[keep]
+        _, drop = _encroached(bxy, p[nb:])
+        p = np.vstack([bxy, p[nb:][~drop]])
+        tri = _delaunay_inside(p, poly)
+
+    # drop unused nodes
+    used = np.zeros(len(p), dtype=bool)
+    used[tri.ravel()] = True
+    used[:nb] = True
+    new = np.cumsum(used) - 1
+    p = p[used]
+    tri = new[tri]
+
+    xyz = sphere.stereographic_inverse(p[:, 0] / _R, p[:, 1] / _R, centre)
+    xyz[:nb] = bxyz
+    xyz = sphere.normalize(xyz)
+    area = facet_areas_km2(xyz, tri)
+    flip = area < 0
+    tri[flip] = tri[flip][:, [0, 2, 1]]
+    area = np.abs(area)
+
+    bedges = np.column_stack([np.arange(nb), (np.arange(nb) + 1) % nb]).astype(np.int64)
+    edge_segment = np.asarray(plate.arc_segment, dtype=np.int64)[barc]
+
+    element_province, element_stiffness = _assign_provinces(plate, xyz, tri, centre)
+
+    angles = triangle_angles_deg(xyz, tri)
+    corner_angle = _corner_angles_deg(ring_xyz)
+    sharp = corner_angle < 60.0
+    # nodes at sharp ring vertices: the boundary nodes with fraction 0 on an arc starting there
+    sharp_nodes = np.flatnonzero((bfrac == 0.0) & sharp[barc])
+    near_corner = np.isin(tri, sharp_nodes).any(axis=1)
+    exact = abs(float(sphere.spherical_polygon_area(ring_xyz)))
+    total = float(area.sum())
+    el = _edges(tri)
+    elen = _R * np.linalg.norm(xyz[el[:, 0]] - xyz[el[:, 1]], axis=1)
+    stats = {
+        "nodes": int(len(xyz)),
+        "triangles": int(len(tri)),
+        "boundary_edges": int(nb),
+        "min_angle_deg": float(angles.min()),
+        "min_angle_away_from_corners_deg": float(angles[~near_corner].min()) if (~near_corner).any()
+        else float(angles.min()),
+        "max_angle_deg": float(angles.max()),
+        "area_km2": total,
+        "exact_area_km2": exact,
+        "area_error": (total - exact) / exact,
+        "edge_km": edge,
+        "mean_edge_km": float(elen.mean()),
+        "seconds": time.perf_counter() - t0,
+    }
+    log.info("meshed %s: %d nodes, %d triangles, min angle %.1f deg in %.2f s", plate.name,
+             stats["nodes"], stats["triangles"], stats["min_angle_deg"], stats["seconds"])
+    lon, lat = sphere.xyz_to_lonlat(xyz)
+    return Mesh(xyz=xyz, lonlat=np.column_stack([lon, lat]), triangles=tri, boundary_edges=bedges,
+                edge_segment=edge_segment, element_province=element_province,
+                element_stiffness=element_stiffness, stats=stats)
+
+
+def _corner_angles_deg(ring_xyz):
+    """Interior angle (degrees) of the ring at each vertex (interior on the left)."""
+    prev = np.roll(ring_xyz, 1, axis=0)
+    nxt = np.roll(ring_xyz, -1, axis=0)
+    e, n = sphere.local_frame(ring_xyz)
+    # tangent directions towards the previous and next vertices
+    tp = prev - np.sum(prev * ring_xyz, axis=1, keepdims=True) * ring_xyz
+    tn = nxt - np.sum(nxt * ring_xyz, axis=1, keepdims=True) * ring_xyz
+    ap = np.arctan2(np.sum(tp * n, axis=1), np.sum(tp * e, axis=1))
+    an = np.arctan2(np.sum(tn * n, axis=1), np.sum(tn * e, axis=1))
+    # interior (left of travel) angle: from the next direction counter-clockwise to previous
+    return np.degrees((ap - an) % (2.0 * np.pi))
+
+
+def _assign_provinces(plate, xyz, tri, centre):
+    import shapely
+
+    m = len(tri)
+    prov = np.full(m, -1, dtype=np.int64)
+    stiff = np.ones(m)
+    if not plate.provinces:
+        return prov, stiff
+    c = sphere.normalize(xyz[tri].sum(axis=1))
+    cx, cy = sphere.gnomonic_forward(c, centre)
+    for k, pv in enumerate(plate.provinces):
+        ring = np.asarray(pv.polygon_lonlat, dtype=float)
+        px, py = sphere.gnomonic_forward(sphere.lonlat_to_xyz(ring[:, 0], ring[:, 1]), centre)
+        poly = shapely.Polygon(np.column_stack([px, py]))
+        shapely.prepare(poly)
+        inside = shapely.contains_xy(poly, cx, cy)
+        prov[inside] = k
+        stiff[inside] = pv.stiffness
+    return prov, stiff
