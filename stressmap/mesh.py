@@ -214,9 +214,16 @@ class _Size:
             np.minimum(h, hv, out=h)
         return h
 
+    @property
+    def uniform(self) -> bool:
+        return not (self.points or self.polygons or self.tree is not None)
+
     def plane_km(self, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+        scale = sphere.stereographic_scale(x / _R, y / _R)
+        if self.uniform:
+            return self.edge * scale
         xyz = sphere.stereographic_inverse(x / _R, y / _R, self.centre)
-        return self.sphere_km(xyz, plane=(x, y)) * sphere.stereographic_scale(x / _R, y / _R)
+        return self.sphere_km(xyz, plane=(x, y)) * scale
 
 
 def _to_plane(xyz, centre):
@@ -338,7 +345,10 @@ def _interior_points(poly, bxy, size: _Size, base: float):
     x = np.concatenate(xs)
     y = np.concatenate(ys)
     h = np.concatenate(hp)
-    pts = np.column_stack([x, y])
+    # a tiny deterministic jitter (1e-4 of the spacing) spares Qhull the exact co-circularity
+    # of a perfect lattice, which makes it several times slower
+    rng = np.random.default_rng(12345)
+    pts = np.column_stack([x, y]) + rng.uniform(-1e-4, 1e-4, size=(len(x), 2)) * h[:, None]
     # not too close to the boundary
     bt = cKDTree(bxy)
     d, _ = bt.query(pts)
@@ -455,38 +465,62 @@ def _delaunay_inside(p, poly):
     return tri[inside]
 
 
+def _plane_areas(p, tri):
+    a, b, c = p[tri[:, 0]], p[tri[:, 1]], p[tri[:, 2]]
+    return 0.5 * ((b[:, 0] - a[:, 0]) * (c[:, 1] - a[:, 1]) - (b[:, 1] - a[:, 1]) * (c[:, 0] - a[:, 0]))
+
+
 def _edges(tri):
+    """Unique undirected edges (k, 2) of triangles, smaller node first."""
     e = np.concatenate([tri[:, [0, 1]], tri[:, [1, 2]], tri[:, [2, 0]]])
     e.sort(axis=1)
-    return np.unique(e, axis=0)
+    n = int(e.max()) + 1 if len(e) else 1
+    key = np.unique(e[:, 0] * n + e[:, 1])
+    return np.column_stack([key // n, key % n])
 
 
-def _smooth(p, tri, nfixed, size: _Size, poly, iterations: int):
-    """Force-based relaxation (bars repel below the local target); nodes < nfixed stay put."""
+def _smooth(p, nfixed, size: _Size, poly, iterations: int, neighbours: int = 6):
+    """Force-based relaxation: bars to the nearest neighbours repel when shorter than the local
+    target (distmesh-style, Persson & Strang 2004); nodes < nfixed stay put.
+
+    Neighbour lists come from a k-d tree (rebuilt every few steps), so no triangulation is
+    needed before the single final one. Only nodes whose neighbourhood is not already a regular
+    lattice at the target spacing move (the boundary zone and level changes); the rest are at
+    equilibrium.
+    """
     import shapely
+    from scipy.spatial import cKDTree
 
-    edges = _edges(tri)
     n = len(p)
-    i, j = edges[:, 0], edges[:, 1]
-    for _ in range(iterations):
-        bars = p[j] - p[i]
-        length = np.linalg.norm(bars, axis=1)
-        mid = 0.5 * (p[i] + p[j])
-        hbar = size.plane_km(mid[:, 0], mid[:, 1])
+    p = p.copy()
+    k = min(neighbours + 1, n)
+    dist, nb_idx = cKDTree(p).query(p, k=k)
+    h = size.plane_km(p[:, 0], p[:, 1])
+    regular = np.all(np.abs(dist[:, 1:] / dist[:, 1:2] - 1.0) < 0.02, axis=1)
+    regular &= np.abs(dist[:, 1] / h - 1.0) < 0.2
+    regular[:nfixed] = False
+    # a node moves when it is irregular or within two rings of an irregular node
+    active = ~regular
+    for _ in range(2):
+        active = active | active[nb_idx].any(axis=1)
+    active[:nfixed] = False
+    act = np.flatnonzero(active)
+    if not len(act):
+        return p, np.ones(n, dtype=bool)
+    for it in range(iterations):
+        if it and it % 3 == 0:
+            _, nb_idx = cKDTree(p).query(p, k=k)
+        nbr = nb_idx[act, 1:]
+        bars = p[act][:, None, :] - p[nbr]
+        length = np.linalg.norm(bars, axis=2)
+        h = size.plane_km(p[:, 0], p[:, 1])
+        hbar = 0.5 * (h[act][:, None] + h[nbr])
         l0 = hbar * 1.2 * np.sqrt(np.sum(length**2) / np.sum(hbar**2))
         force = np.maximum(l0 - length, 0.0) / np.maximum(length, 1e-12)
-        fvec = force[:, None] * bars
-        ftot = np.zeros_like(p)
-        for d in range(2):
-            ftot[:, d] = np.bincount(j, fvec[:, d], n) - np.bincount(i, fvec[:, d], n)
-        ftot[:nfixed] = 0.0
-        step = 0.2 * ftot
-        # limit the move to a fraction of the local size
-        hloc = size.plane_km(p[:, 0], p[:, 1])
+        step = 0.2 * np.sum(force[:, :, None] * bars, axis=1)
         mag = np.linalg.norm(step, axis=1)
-        lim = 0.2 * hloc
-        step *= np.minimum(1.0, lim / np.maximum(mag, 1e-300))[:, None]
-        p = p + step
+        step *= np.minimum(1.0, 0.2 * h[act] / np.maximum(mag, 1e-300))[:, None]
+        p[act] += step
     # interior nodes that left the polygon are dropped
     inside = shapely.contains_xy(poly, p[:, 0], p[:, 1])
     inside[:nfixed] = True
@@ -555,13 +589,12 @@ def mesh_plate(plate, edge_km: float | None = None, smoothing_iterations: int = 
     shapely.prepare(poly)
 
     p = np.vstack([bxy, pts])
-    tri = _delaunay_inside(p, poly)
     if smoothing_iterations:
-        p, keep = _smooth(p, tri, nb, size, poly, smoothing_iterations)
+        p, keep = _smooth(p, nb, size, poly, smoothing_iterations)
         p = p[keep]
         _, drop = _encroached(bxy, p[nb:])
         p = np.vstack([bxy, p[nb:][~drop]])
-        tri = _delaunay_inside(p, poly)
+    tri = _delaunay_inside(p, poly)
 
     # drop unused nodes
     used = np.zeros(len(p), dtype=bool)
