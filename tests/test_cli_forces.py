@@ -76,7 +76,7 @@ def test_table_lists_forces_with_units(capsys):
 
 def test_params_file_overrides_defaults_and_options_win(tmp_path, capsys):
     path = tmp_path / "physics.toml"
-    path.write_text("[half_space]\nmantle_temperature_c = 1350.0\n[basal_drag]\nlength_km = 3000.0\n")
+    path.write_text("[half_space]\nmantle_temperature_c = 1350.0\n[drag]\nlength_km = 3000.0\n")
     base = run_json(capsys)
     out = run_json(capsys, "--params", str(path))
     # ridge push grows with (Tm - T0) (closed form: dT (1 + c dT)); 1350/1300 at least

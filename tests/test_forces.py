@@ -48,8 +48,8 @@ def test_defaults_file_gives_a_source_for_every_value():
 
 def test_load_defaults_returns_a_copy():
     d = forces.load_defaults()
-    d["basal_drag"]["viscosity_pa_s"] = 1.0
-    assert forces.load_defaults()["basal_drag"]["viscosity_pa_s"] == 1e20
+    d["drag"]["viscosity_pa_s"] = 1.0
+    assert forces.load_defaults()["drag"]["viscosity_pa_s"] == 1e20
 
 
 # --------------------------------------------------------------------------- ridge push

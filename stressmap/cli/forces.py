@@ -45,10 +45,10 @@ _DEFAULTS = {
     "slab_age_myr": ("slab_pull", "slab_age_myr"),
     "slab_depth_km": ("slab_pull", "slab_depth_km"),
     "pull_fraction": ("slab_pull", "pull_fraction"),
-    "viscosity_pa_s": ("basal_drag", "viscosity_pa_s"),
-    "channel_km": ("basal_drag", "channel_km"),
-    "velocity_mm_yr": ("basal_drag", "velocity_mm_yr"),
-    "length_km": ("basal_drag", "length_km"),
+    "viscosity_pa_s": ("drag", "viscosity_pa_s"),
+    "channel_km": ("drag", "channel_km"),
+    "velocity_mm_yr": ("drag", "velocity_mm_yr"),
+    "length_km": ("drag", "length_km"),
     "collision_stress_mpa": ("collision", "mean_stress_mpa"),
     "collision_depth_km": ("collision", "coupled_depth_km"),
     "transform_stress_mpa": ("transform", "mean_stress_mpa"),
@@ -92,13 +92,13 @@ def register(subparsers) -> None:
                    help=_h("share of the slab's negative buoyancy transmitted to the plate, 0-1", d, "slab_pull", "pull_fraction"))
     g = p.add_argument_group("basal drag (Couette shear of the asthenosphere)")
     g.add_argument("--viscosity-pa-s", type=_number(), default=None,
-                   help=_h("viscosity of the sheared channel, Pa s", d, "basal_drag", "viscosity_pa_s"))
+                   help=_h("viscosity of the sheared channel, Pa s", d, "drag", "viscosity_pa_s"))
     g.add_argument("--channel-km", type=_number(0.0, strict=True), default=None,
-                   help=_h("thickness of the sheared channel, km", d, "basal_drag", "channel_km"))
+                   help=_h("thickness of the sheared channel, km", d, "drag", "channel_km"))
     g.add_argument("--velocity-mm-yr", type=_number(), default=None,
-                   help=_h("plate velocity relative to the deep mantle, mm/yr", d, "basal_drag", "velocity_mm_yr"))
+                   help=_h("plate velocity relative to the deep mantle, mm/yr", d, "drag", "velocity_mm_yr"))
     g.add_argument("--length-km", type=_number(), default=None,
-                   help=_h("plate length over which the basal traction is integrated, km", d, "basal_drag", "length_km"))
+                   help=_h("plate length over which the basal traction is integrated, km", d, "drag", "length_km"))
     g = p.add_argument_group("line forces (mean stress x coupled depth)")
     g.add_argument("--collision-stress-mpa", type=_number(), default=None,
                    help=_h("mean compressive stress carried across a collision zone, MPa", d, "collision", "mean_stress_mpa"))
