@@ -46,6 +46,10 @@ __all__ = ["Mesh", "mesh_plate", "triangle_angles_deg", "facet_areas_km2"]
 log = logging.getLogger(__name__)
 
 _RHO = 0.85  # lattice spacing ratio between size levels
+#: Ring corners with an interior angle below this (degrees) are sharp: the mesh is graded
+#: towards them and triangles touching them are left out of the minimum-angle statistic.
+SHARP_CORNER_DEG = 60.0
+CORNER_ZONE_EDGES = 1.5
 _R = EARTH_RADIUS_KM
 
 
@@ -171,14 +175,21 @@ class _Size:
                     poly = poly.buffer(buf)
                 shapely.prepare(poly)
                 self.polygons.append((poly, fine))
-        # ring vertices next to short arcs: local feature size
+        # ring vertices next to short arcs (local feature size) and at sharp corners (the
+        # size shrinks towards the corner in proportion to the wedge width 2 d sin(angle/2))
         arc = _R * sphere.angle_between(ring_xyz, np.roll(ring_xyz, -1, axis=0))
         lfs = np.minimum(arc, np.roll(arc, 1))
-        short = lfs < self.edge
-        self.vertex_xyz = ring_xyz[short]
-        self.vertex_fine = np.maximum(lfs[short], 1e-3)
+        corner = np.radians(_corner_angles_deg(ring_xyz))
+        sharp = corner < np.radians(SHARP_CORNER_DEG)
+        wedge = 2.0 * np.sin(np.minimum(corner, np.pi / 2) / 2.0)
+        fine = np.where(sharp, np.minimum(lfs, self.edge * np.maximum(wedge / 2.0, 0.02)), lfs)
+        slope = np.where(sharp, np.minimum(wedge, self.grading), self.grading)
+        use = (fine < self.edge) | sharp
+        self.vertex_xyz = ring_xyz[use]
+        self.vertex_fine = np.maximum(fine[use], 1e-3)
+        self.vertex_slope = slope[use]
         self.tree = None
-        if short.any():
+        if use.any():
             from scipy.spatial import cKDTree
 
             self.tree = cKDTree(self.vertex_xyz)
@@ -210,7 +221,7 @@ class _Size:
             chord = chord.reshape(len(chord), -1)
             idx = idx.reshape(len(idx), -1)
             d = 2.0 * _R * np.arcsin(np.minimum(chord / 2.0, 1.0))
-            hv = np.min(self.vertex_fine[idx] + g * d, axis=1).reshape(h.shape)
+            hv = np.min(self.vertex_fine[idx] + self.vertex_slope[idx] * d, axis=1).reshape(h.shape)
             np.minimum(h, hv, out=h)
         return h
 
@@ -372,8 +383,9 @@ def _fine_boxes(size: _Size, upper: float, bounds):
     srcs = []
     for pxyz, fine, radius in size.points:
         srcs.append((pxyz, fine, radius))
-    for xyz, fine in zip(size.vertex_xyz, size.vertex_fine):
-        srcs.append((xyz, float(fine), 0.0))
+    for xyz, fine, slope in zip(size.vertex_xyz, size.vertex_fine, size.vertex_slope):
+        # a slope below the grading reaches further: scale the radius to the grading
+        srcs.append((xyz, float(fine), max((upper - fine) / slope - (upper - fine) / g, 0.0)))
     # the plane scale is >= 1, so sphere size below upper is necessary; reach in sphere km
     scale_max = float(sphere.stereographic_scale((x1 - x0 + abs(x0)) / _R, (y1 - y0 + abs(y0)) / _R))
     if srcs:
@@ -507,13 +519,19 @@ def _smooth(p, nfixed, size: _Size, poly, iterations: int, neighbours: int = 6):
     act = np.flatnonzero(active)
     if not len(act):
         return p, np.ones(n, dtype=bool)
+    # the moving nodes and everything they can touch: a sub-problem for the neighbour search
+    sub = np.unique(np.concatenate([act, nb_idx[act].ravel()]))
+    for _ in range(2):
+        sub = np.unique(np.concatenate([sub, nb_idx[sub].ravel()]))
+    nbr = nb_idx[act, 1:]
     for it in range(iterations):
         if it and it % 3 == 0:
-            _, nb_idx = cKDTree(p).query(p, k=k)
-        nbr = nb_idx[act, 1:]
+            _, loc = cKDTree(p[sub]).query(p[act], k=k)
+            nbr = sub[loc[:, 1:]]
         bars = p[act][:, None, :] - p[nbr]
         length = np.linalg.norm(bars, axis=2)
-        h = size.plane_km(p[:, 0], p[:, 1])
+        h = np.zeros(n)
+        h[sub] = size.plane_km(p[sub, 0], p[sub, 1])
         hbar = 0.5 * (h[act][:, None] + h[nbr])
         l0 = hbar * 1.2 * np.sqrt(np.sum(length**2) / np.sum(hbar**2))
         force = np.maximum(l0 - length, 0.0) / np.maximum(length, 1e-12)
@@ -527,10 +545,55 @@ def _smooth(p, nfixed, size: _Size, poly, iterations: int, neighbours: int = 6):
     return p, inside
 
 
+def _plane_angles_deg(p, tri):
+    q = np.concatenate([p, np.zeros((len(p), 1))], axis=1)
+    return triangle_angles_deg(q, tri)
+
+
+def _improve(p, tri, nfixed, size: _Size, iterations: int = 20, threshold_deg: float = 24.0):
+    """Relax the neighbourhood (3 rings) of poorly shaped triangles along triangulation edges.
+
+    Returns new node positions, or None when every triangle is already good (corner triangles,
+    whose shape the ring fixes, do not count).
+    """
+    ang = _plane_angles_deg(p, tri).min(axis=1)
+    bad = ang < threshold_deg
+    bad &= ~(tri < nfixed).all(axis=1)
+    if not bad.any():
+        return None
+    n = len(p)
+    mark = np.zeros(n, dtype=bool)
+    mark[tri[bad].ravel()] = True
+    for _ in range(3):
+        mark[tri[mark[tri].any(axis=1)].ravel()] = True
+    mark[:nfixed] = False
+    edges = _edges(tri)
+    edges = edges[mark[edges].any(axis=1)]
+    i, j = edges[:, 0], edges[:, 1]
+    p = p.copy()
+    for _ in range(iterations):
+        bars = p[i] - p[j]
+        length = np.linalg.norm(bars, axis=1)
+        mid = 0.5 * (p[i] + p[j])
+        hbar = size.plane_km(mid[:, 0], mid[:, 1])
+        l0 = hbar * 1.2 * np.sqrt(np.sum(length**2) / np.sum(hbar**2))
+        force = np.maximum(l0 - length, 0.0) / np.maximum(length, 1e-12)
+        fvec = force[:, None] * bars
+        step = np.zeros_like(p)
+        for d in range(2):
+            step[:, d] = 0.2 * (np.bincount(i, fvec[:, d], n) - np.bincount(j, fvec[:, d], n))
+        step[~mark] = 0.0
+        h = size.plane_km(p[:, 0], p[:, 1])
+        mag = np.linalg.norm(step, axis=1)
+        step *= np.minimum(1.0, 0.2 * h / np.maximum(mag, 1e-300))[:, None]
+        p += step
+    return p
+
+
 # --------------------------------------------------------------------------------------------
 
 
-def mesh_plate(plate, edge_km: float | None = None, smoothing_iterations: int = 8) -> Mesh:
+def mesh_plate(plate, edge_km: float | None = None, smoothing_iterations: int = 20) -> Mesh:
     """Triangulate a plate (see the module docstring for the method).
 
     Parameters
@@ -595,6 +658,14 @@ def mesh_plate(plate, edge_km: float | None = None, smoothing_iterations: int = 
         _, drop = _encroached(bxy, p[nb:])
         p = np.vstack([bxy, p[nb:][~drop]])
     tri = _delaunay_inside(p, poly)
+    for _ in range(2):
+        q = _improve(p, tri, nb, size)
+        if q is None:
+            break
+        _, drop = _encroached(bxy, q[nb:])
+        keep = shapely.contains_xy(poly, q[nb:, 0], q[nb:, 1]) & ~drop
+        p = np.vstack([bxy, q[nb:][keep]])
+        tri = _delaunay_inside(p, poly)
 
     # drop unused nodes
     used = np.zeros(len(p), dtype=bool)
@@ -619,10 +690,18 @@ def mesh_plate(plate, edge_km: float | None = None, smoothing_iterations: int = 
 
     angles = triangle_angles_deg(xyz, tri)
     corner_angle = _corner_angles_deg(ring_xyz)
-    sharp = corner_angle < 60.0
+    sharp = corner_angle < SHARP_CORNER_DEG
     # nodes at sharp ring vertices: the boundary nodes with fraction 0 on an arc starting there
+    # "near a sharp corner": a triangle touching it, or with a node within CORNER_ZONE_EDGES
+    # target edge lengths of it (where the wedge is narrower than the mesh can resolve)
     sharp_nodes = np.flatnonzero((bfrac == 0.0) & sharp[barc])
     near_corner = np.isin(tri, sharp_nodes).any(axis=1)
+    if len(sharp_nodes):
+        from scipy.spatial import cKDTree
+
+        zone = 2.0 * np.sin(CORNER_ZONE_EDGES * edge / _R / 2.0)
+        hit = cKDTree(xyz[sharp_nodes]).query(xyz, distance_upper_bound=zone)[0] < zone
+        near_corner |= hit[tri].any(axis=1)
     exact = abs(float(sphere.spherical_polygon_area(ring_xyz)))
     total = float(area.sum())
     el = _edges(tri)
