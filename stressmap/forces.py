@@ -144,8 +144,10 @@ def ridge_push_numeric_n_per_m(age_myr, model: str = "half_space", params=None, 
     >>> f = ridge_push_numeric_n_per_m([10.0, 100.0])
     >>> (f / ridge_push_n_per_m([10.0, 100.0])).round(5).tolist()
     [1.0, 1.0]
-    >>> float(ridge_push_numeric_n_per_m(0.0))
-    0.0
+    >>> float(ridge_push_numeric_n_per_m(0.0)), float(ridge_push_numeric_n_per_m(0.0, "plate"))
+    (0.0, 0.0)
+    >>> ridge_push_numeric_n_per_m([]).shape
+    (0,)
     """
     c = thermal.model_constants(model, params)
     t_myr = np.asarray(age_myr, dtype=float)
@@ -159,6 +161,7 @@ def ridge_push_numeric_n_per_m(age_myr, model: str = "half_space", params=None, 
         bottom_m = 16.0 * np.sqrt(c["kappa"] * t_flat * SECONDS_PER_MYR)
     s_m = bottom_m * np.linspace(0.0, 1.0, int(n_depth))[None, :]  # (ages, n) below the seafloor
     v = thermal.temperature_deficit(s_m / 1e3, t_flat, model, params)
+    v = np.where(t_flat == 0, 0.0, v)  # the ridge column itself: its surface step has no mass
     rho_aged = c["rho_m"] * (1.0 + c["alpha"] * c["dt_k"] * v)  # density of the aged column
     g, rho_m, rho_w = G_M_S2, c["rho_m"], c["rho_w"]
     # Isostasy: equal mass above the compensation depth in both columns fixes the water depth.
@@ -188,6 +191,8 @@ def ridge_push_rate_n_per_m_per_myr(age_myr, params=None, model: str = "half_spa
     4.1263
     >>> bool(ridge_push_rate_n_per_m_per_myr(300.0, model="plate") < 1e9)
     True
+    >>> ridge_push_rate_n_per_m_per_myr([np.nan]).tolist()   # unknown age: no force
+    [nan]
     """
     c = thermal.model_constants(model, params)
     m = thermal.column_moments(age_myr, model, params)
@@ -202,7 +207,7 @@ def ridge_push_rate_n_per_m_per_myr(age_myr, params=None, model: str = "half_spa
         with np.errstate(invalid="ignore"):
             w_dw = np.where(m["j_m"] > 0, w * dw, 2.0 * b**2 * c["kappa"] / (np.pi * (rho_m - rho_w) ** 2))
     rate_per_s = (rho_m - rho_w) * G_M_S2 * w_dw + G_M_S2 * b * m["di_m2_per_s"]
-    return rate_per_s * SECONDS_PER_MYR
+    return np.where(np.isnan(m["j_m"]), np.nan, rate_per_s * SECONDS_PER_MYR)
 
 
 def ridge_push_body_force_n_per_m2(age_myr, age_gradient_myr_per_m, params=None, model: str = "half_space") -> np.ndarray:

@@ -211,7 +211,8 @@ def _deficit_half_space(z_m, t_s, kappa):
     scale = 2.0 * np.sqrt(kappa * t_s)
     with np.errstate(divide="ignore", invalid="ignore"):
         out = special.erfc(z_m / scale)
-    return np.where(t_s > 0, out, np.where(z_m > 0, 0.0, 1.0))
+    step = np.where(z_m > 0, 0.0, 1.0)  # t = 0: the ridge column
+    return np.where(t_s > 0, out, np.where(t_s == 0, step, np.nan))
 
 
 def _deficit_plate(z_m, t_s, kappa, a_m):
@@ -238,6 +239,8 @@ def temperature_deficit(depth_km, age_myr, model: str = "half_space", params=Non
     --------
     >>> float(temperature_deficit(0.0, 50.0))
     1.0
+    >>> temperature_deficit([0.0, 10.0], [0.0, np.nan]).tolist()   # ridge column; unknown age
+    [1.0, nan]
     >>> round(float(temperature_deficit(95.0, 50.0, model="plate")), 12)
     0.0
     """
@@ -303,6 +306,10 @@ def thermal_thickness_km(age_myr, model: str = "half_space", params=None, fracti
     0.0
     >>> bool(thermal_thickness_km(1000.0, model="plate") < 95.0)
     True
+    >>> thermal_thickness_km([np.nan, 0.0], model="plate").tolist()   # NaN ages stay NaN
+    [nan, 0.0]
+    >>> thermal_thickness_km([]).shape
+    (0,)
     """
     if not 0.0 < fraction < 1.0:
         raise InputError("fraction must lie strictly between 0 and 1", [problem("must lie in (0, 1)", field="fraction")])
@@ -318,7 +325,7 @@ def thermal_thickness_km(age_myr, model: str = "half_space", params=None, fracti
         above = _deficit_plate(mid, t, c["kappa"], c["a_m"]) > target
         lo = np.where(above, mid, lo)
         hi = np.where(above, hi, mid)
-    return 0.5 * (lo + hi) / 1e3
+    return np.where(np.isnan(t), np.nan, np.where(t > 0, 0.5 * (lo + hi), 0.0)) / 1e3
 
 
 def _ierfc(x):
