@@ -128,6 +128,10 @@ def ridge_push_n_per_m(age_myr, params=None, model: str = "half_space") -> np.nd
     return 0.5 * (c["rho_m"] - c["rho_w"]) * G_M_S2 * w**2 + G_M_S2 * b * m["i_m2"]
 
 
+#: Ages per block in :func:`ridge_push_numeric_n_per_m` (256 x 4001 doubles = 8 MB per work array).
+_NUMERIC_CHUNK = 256
+
+
 def ridge_push_numeric_n_per_m(age_myr, model: str = "half_space", params=None, n_depth: int = 4001) -> np.ndarray:
     """Ridge push (N/m) by integrating the lithostatic pressure difference on a depth grid.
 
@@ -137,7 +141,7 @@ def ridge_push_numeric_n_per_m(age_myr, model: str = "half_space", params=None, 
     isostasy (trapezoid rule) gives the water depth ``w`` over it; the pressure of each column
     follows by cumulative trapezoid integration of density (water load on the aged column), and
     ridge push is the trapezoid integral of ``P_ridge - P_aged`` from the ridge crest to the
-    compensation depth. Vectorised over ages (memory ~ ages x n_depth).
+    compensation depth. Vectorised over ages, in blocks of 256 ages to bound memory.
 
     Examples
     --------
@@ -154,7 +158,12 @@ def ridge_push_numeric_n_per_m(age_myr, model: str = "half_space", params=None, 
     if np.any(t_myr < 0):
         raise InputError("age_myr must be >= 0", [problem("must be >= 0", field="age_myr")])
     shape = t_myr.shape
-    t_flat = t_myr.reshape(-1, 1)
+    flat = t_myr.reshape(-1)
+    if flat.size > _NUMERIC_CHUNK:  # bound the (ages, n_depth) work arrays; each chunk is vectorised
+        parts = [ridge_push_numeric_n_per_m(flat[i:i + _NUMERIC_CHUNK], model, params, n_depth)
+                 for i in range(0, flat.size, _NUMERIC_CHUNK)]
+        return np.concatenate(parts).reshape(shape)
+    t_flat = flat.reshape(-1, 1)
     if model == "plate":
         bottom_m = np.full_like(t_flat, c["a_m"])
     else:
