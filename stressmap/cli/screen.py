@@ -1,0 +1,273 @@
+"""``stressmap screen``: stress magnitudes at a site and depth, and fault reactivation screening.
+
+Works without a model when the SHmax azimuth and the regime are given
+(``--shmax-azimuth-deg``, ``--regime``); with ``--model DIR`` they come from the built model and
+any option given overrides the model's value.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+from stressmap.errors import InputError, problem
+
+__all__ = ["register", "build_request", "read_density_profile", "parse_pair", "format_text"]
+
+
+def parse_pair(text: str | None, option: str):
+    """``"LO,HI"`` -> [lo, hi] (None passes through).
+
+    Examples
+    --------
+    >>> parse_pair("0.5,0.8", "--friction-range")
+    [0.5, 0.8]
+    """
+    if text is None:
+        return None
+    parts = text.split(",")
+    try:
+        if len(parts) != 2:
+            raise ValueError
+        return [float(parts[0]), float(parts[1])]
+    except ValueError:
+        raise InputError(f"cannot read {option} {text!r}: use LOW,HIGH",
+                         [problem("expected two numbers LOW,HIGH", field=option)]) from None
+
+
+def read_density_profile(path) -> dict:
+    """Density profile file (CSV): columns ``top_km``, ``density_kg_m3`` and optionally
+    ``gradient_kg_m3_per_km``; one row per layer from the surface down; '#' starts a comment.
+    """
+    import pandas as pd
+
+    path = Path(path)
+    try:
+        frame = pd.read_csv(path, comment="#", skipinitialspace=True)
+    except (OSError, ValueError) as exc:
+        raise InputError(f"cannot read density profile {path}: {exc}",
+                         [problem(str(exc), field="--density-profile")]) from exc
+    missing = [c for c in ("top_km", "density_kg_m3") if c not in frame.columns]
+    if missing:
+        raise InputError(f"density profile {path} lacks column(s) {', '.join(missing)}",
+                         [problem("required column missing", field=c) for c in missing])
+    out = {}
+    for col in ("top_km", "density_kg_m3", "gradient_kg_m3_per_km"):
+        if col not in frame.columns:
+            continue
+        values = pd.to_numeric(frame[col], errors="coerce")
+        bad = [i + 1 for i in range(len(values)) if not math.isfinite(values.iloc[i])]
+        if bad:
+            raise InputError(f"density profile {path}: column {col} has non-numbers",
+                             [problem("not a number", field=col, row=r) for r in bad])
+        out[col] = values.tolist()
+    return out
+
+
+def build_request(args) -> dict:
+    """Turn parsed options into the shared request document (:func:`sitescreen.parse_request`)."""
+    from stressmap.cli.model import parse_weights
+    from stressmap.fault_io import read_fault_file
+    from stressmap.sitescreen import parse_plane_text, parse_site_text
+
+    doc: dict = {"site": list(parse_site_text(args.site)), "depth_km": args.depth_km}
+    for key in ("shmax_azimuth_deg", "regime", "shape_ratio", "friction", "cohesion_mpa",
+                "density_kg_m3", "pore_gradient_mpa_km", "pore_pressure_mpa", "sv_mpa",
+                "shmax_mpa", "shmin_mpa"):
+        value = getattr(args, key)
+        if value is not None:
+            doc[key] = value
+    if args.density_profile:
+        doc["density_profile"] = read_density_profile(args.density_profile)
+    if args.weights:
+        doc["weights"] = parse_weights(args.weights)
+    planes = []
+    for text in args.plane or []:
+        s, d = parse_plane_text(text)
+        planes.append({"strike_deg": s, "dip_deg": d, "name": f"plane {text}"})
+    if planes:
+        doc["planes"] = planes
+    if args.faults:
+        parsed, collection = read_fault_file(args.faults)
+        if collection is None:  # CSV of planes
+            pl = parsed["planes"]
+            doc.setdefault("planes", [])
+            doc["planes"] += [{"strike_deg": s, "dip_deg": d, "name": n}
+                              for s, d, n in zip(pl["strike_deg"], pl["dip_deg"], pl["name"])]
+        else:
+            doc["faults"] = collection
+    unc = {}
+    for key, option in (("friction_range", "--friction-range"),
+                        ("pore_pressure_range_mpa", "--pore-pressure-range-mpa"),
+                        ("pore_gradient_range_mpa_km", "--pore-gradient-range-mpa-km"),
+                        ("density_range_kg_m3", "--density-range-kg-m3"),
+                        ("shape_ratio_range", "--shape-ratio-range")):
+        value = parse_pair(getattr(args, key), option)
+        if value is not None:
+            unc[key] = value
+    for key in ("samples", "seed", "azimuth_sigma_deg", "margin_threshold_mpa",
+                "ensemble_members"):
+        value = getattr(args, key)
+        if value is not None:
+            unc[key] = value
+    if unc:
+        doc["uncertainty"] = unc
+    return doc
+
+
+def _fmt(v, nd=2):
+    if v is None or (isinstance(v, float) and not math.isfinite(v)):
+        return "-"
+    return f"{v:.{nd}f}" if isinstance(v, float) else str(v)
+
+
+def format_text(doc: dict) -> str:
+    """Human-readable report of a screening JSON document (caution first and last)."""
+    lines = [f"CAUTION: {doc['caution']}", ""]
+    s = doc["site"]
+    lines.append(f"Site {s['lon']:.4f}, {s['lat']:.4f} at {doc['depth_km']:g} km depth")
+    src = doc["sources"]
+    lines.append(f"  SHmax azimuth {doc['shmax_azimuth_deg']:.1f} deg ({src['shmax_azimuth_deg']}),"
+                 f" regime {doc['regime']} ({src['regime']}), shape ratio "
+                 f"{doc['shape_ratio']:.2f} ({src['shape_ratio']})")
+    lines.append(f"  Sv {doc['sv_mpa']:.1f} MPa ({src['sv_mpa']}), Pp {doc['pp_mpa']:.1f} MPa "
+                 f"({src['pp_mpa']}), friction {doc['friction']:g}, cohesion "
+                 f"{doc['cohesion_mpa']:g} MPa")
+    lines.append(f"  SHmax {doc['shmax_mpa']:.1f} MPa (frictional bounds "
+                 f"{doc['shmax_lower_mpa']:.1f}-{doc['shmax_upper_mpa']:.1f})")
+    lines.append(f"  Shmin {doc['shmin_mpa']:.1f} MPa (frictional bounds "
+                 f"{doc['shmin_lower_mpa']:.1f}-{doc['shmin_upper_mpa']:.1f})")
+    unc = doc.get("uncertainty")
+    if unc:
+        lines.append(f"  Uncertainty: {unc['samples']} samples; {unc['orientation_source']}")
+    if doc["planes"]:
+        lines.append("")
+        has_p = "pore_pressure_margin_p05_mpa" in doc["planes"][0]
+        head = (f"{'rank':>4} {'strike':>6} {'dip':>4} {'sn MPa':>7} {'tau MPa':>7} {'Ts':>5} "
+                f"{'Td':>5} {'dPp MPa':>8}")
+        if has_p:
+            head += f" {'dPp p5-p95':>13} {'P(<thr)':>7}"
+        lines.append(head + "  name")
+        for p in doc["planes"]:
+            row = (f"{p['rank']:>4} {p['strike_deg']:6.1f} {p['dip_deg']:4.0f} "
+                   f"{_fmt(p['normal_stress_mpa'], 1):>7} {_fmt(p['shear_stress_mpa'], 1):>7} "
+                   f"{_fmt(p['slip_tendency']):>5} {_fmt(p['dilation_tendency']):>5} "
+                   f"{_fmt(p['pore_pressure_margin_mpa'], 1):>8}")
+            if has_p:
+                band = (f"{_fmt(p['pore_pressure_margin_p05_mpa'], 1)}.."
+                        f"{_fmt(p['pore_pressure_margin_p95_mpa'], 1)}")
+                row += f" {band:>13} {_fmt(p['probability_margin_below_threshold']):>7}"
+            seg = f" #{p['segment']}" if p.get("segment", -1) > 0 else ""
+            lines.append(f"{row}  {p['name']}{seg}")
+        lines.append("  (Ts slip tendency, Td dilation tendency, dPp pore-pressure increase to "
+                     "failure)")
+    for note in doc.get("notes", []):
+        lines.append(f"note: {note}")
+    lines += ["", f"CAUTION: {doc['caution']}"]
+    return "\n".join(lines)
+
+
+def _run(args) -> int:
+    from stressmap.sitescreen import (parse_request, result_csv, result_geojson, result_json,
+                                      screen)
+
+    doc = build_request(args)
+    req = parse_request(doc)
+    model = model_info = None
+    if args.model:
+        from stressmap.modeldir import read_model
+
+        model = read_model(args.model)
+        summary = getattr(model, "summary", {}) or {}
+        model_info = {"directory": str(args.model), "name": summary.get("name"),
+                      "build_time": summary.get("build_time")}
+    result = screen(req, model, model_info)
+    out = result_json(result)
+    if args.csv:
+        Path(args.csv).write_text(result_csv(result), encoding="utf-8")
+    if args.geojson:
+        Path(args.geojson).write_text(json.dumps(result_geojson(result), indent=1),
+                                      encoding="utf-8")
+    pictures = (("mohr_png", "mohr_png"), ("polygon_png", "polygon_png"),
+                ("map_png", "fault_map_png"))
+    if any(getattr(args, opt) for opt, _ in pictures):
+        from stressmap import plot_screening
+
+        for opt, fn in pictures:
+            target = getattr(args, opt)
+            if target:
+                Path(target).write_bytes(getattr(plot_screening, fn)(result))
+    if args.json:
+        print(json.dumps(out, indent=1))
+    else:
+        print(format_text(out))
+    return 0
+
+
+def register(subparsers) -> None:
+    p = subparsers.add_parser(
+        "screen",
+        help="stress magnitudes at a site and depth; fault slip and dilation tendency",
+        description=(
+            "Stress at a site and depth (Sv from a density profile, pore pressure, frictional-"
+            "limit bounds and a central estimate at frictional equilibrium) and screening of "
+            "fault planes for reactivation (slip and dilation tendency, Coulomb stress, the "
+            "pore-pressure increase to failure), ranked. Screening estimate from a regional, "
+            "plate-scale model: it does not replace site-specific engineering studies, in-situ "
+            "stress measurements, local codes and regulations, or licensed professional "
+            "judgement."),
+    )
+    p.add_argument("--site", required=True, metavar="LON,LAT", help="site, degrees")
+    p.add_argument("--depth-km", required=True, type=float, metavar="Z", help="depth, km")
+    p.add_argument("--model", metavar="DIR", help="built model directory (orientation, regime, "
+                   "shape ratio at the site)")
+    p.add_argument("--weights", metavar="GROUP=W,...", help="model load-group weights")
+    p.add_argument("--faults", metavar="FILE", help="fault traces (GeoJSON/GeoPackage lines with "
+                   "dip_deg, dip_direction_deg) or planes (points or CSV with strike_deg, dip_deg)")
+    p.add_argument("--plane", action="append", metavar="STRIKE/DIP",
+                   help="a plane, right-hand rule (repeatable)")
+    p.add_argument("--json", action="store_true", help="print the result as JSON")
+    g = p.add_argument_group("orientation overrides")
+    g.add_argument("--shmax-azimuth-deg", type=float, help="SHmax azimuth, degrees from north")
+    g.add_argument("--regime", choices=["normal", "strike-slip", "reverse"])
+    g.add_argument("--shape-ratio", type=float, help="(S2-S3)/(S1-S3) in [0, 1]")
+    g = p.add_argument_group("site physics")
+    g.add_argument("--friction", type=float, help="friction coefficient (default 0.6)")
+    g.add_argument("--cohesion-mpa", type=float, help="fault cohesion, MPa (default 0)")
+    dens = g.add_mutually_exclusive_group()
+    dens.add_argument("--density-kg-m3", type=float,
+                      help="constant overburden density (default 2450 kg/m^3)")
+    dens.add_argument("--density-profile", metavar="FILE", help="CSV: top_km, density_kg_m3 "
+                      "[, gradient_kg_m3_per_km] per layer")
+    pore = g.add_mutually_exclusive_group()
+    pore.add_argument("--pore-gradient-mpa-km", type=float,
+                      help="pore-pressure gradient (default hydrostatic 9.81 MPa/km)")
+    pore.add_argument("--pore-pressure-mpa", type=float, help="pore pressure at the depth, MPa")
+    g = p.add_argument_group("measured magnitudes (override the estimate)")
+    g.add_argument("--sv-mpa", type=float)
+    g.add_argument("--shmax-mpa", type=float)
+    g.add_argument("--shmin-mpa", type=float)
+    g = p.add_argument_group("uncertainty (sampling; any range turns it on, 1000 samples)")
+    g.add_argument("--samples", type=int)
+    g.add_argument("--seed", type=int)
+    g.add_argument("--friction-range", metavar="LO,HI")
+    g.add_argument("--pore-pressure-range-mpa", metavar="LO,HI")
+    g.add_argument("--pore-gradient-range-mpa-km", metavar="LO,HI")
+    g.add_argument("--density-range-kg-m3", metavar="LO,HI",
+                   help="range of the mean overburden density")
+    g.add_argument("--shape-ratio-range", metavar="LO,HI")
+    g.add_argument("--azimuth-sigma-deg", type=float,
+                   help="standard deviation of SHmax azimuth when no ensemble is used "
+                        "(default 15)")
+    g.add_argument("--ensemble-members", type=int,
+                   help="sample azimuth/regime/shape ratio from a model ensemble of this size")
+    g.add_argument("--margin-threshold-mpa", type=float,
+                   help="report the probability that the margin falls below this (default 0)")
+    g = p.add_argument_group("files")
+    g.add_argument("--csv", metavar="FILE", help="write the ranked planes as CSV")
+    g.add_argument("--geojson", metavar="FILE", help="write planes/trace segments as GeoJSON")
+    g.add_argument("--mohr-png", metavar="FILE", help="write a Mohr diagram")
+    g.add_argument("--polygon-png", metavar="FILE", help="write the stress polygon")
+    g.add_argument("--map-png", metavar="FILE", help="write a map of traces coloured by margin")
+    p.set_defaults(handler=_run)

@@ -1,0 +1,144 @@
+"""`stressmap screen`: the command's options, its JSON contract, files and errors."""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+from stressmap import CAUTION
+from stressmap.cli import main
+
+BASE = ["screen", "--site=-15.0,-20.0", "--depth-km", "3"]
+ORIENT = ["--shmax-azimuth-deg", "40", "--regime", "normal"]
+
+
+def run_json(capsys, *args):
+    assert main([*BASE, *args, "--json"]) == 0
+    return json.loads(capsys.readouterr().out)
+
+
+def test_json_contract_without_a_model(capsys):
+    doc = run_json(capsys, *ORIENT, "--plane", "040/60", "--plane", "130/80")
+    for key in ("sv_mpa", "pp_mpa", "shmax_mpa", "shmin_mpa", "shmax_lower_mpa",
+                "shmax_upper_mpa", "shmin_lower_mpa", "shmin_upper_mpa", "caution"):
+        assert key in doc
+    assert doc["caution"].startswith(CAUTION)
+    assert "local codes" in doc["caution"] and "licensed" in doc["caution"]
+    for plane in doc["planes"]:
+        for key in ("strike_deg", "dip_deg", "normal_stress_mpa", "shear_stress_mpa",
+                    "slip_tendency", "dilation_tendency", "pore_pressure_margin_mpa"):
+            assert isinstance(plane[key], float)
+    # Sv = rho g z with the default 2450 kg/m^3 (common-practice 24 MPa/km); Pp hydrostatic
+    assert_allclose(doc["sv_mpa"], 2450 * 9.81 * 3000 / 1e6, rtol=1e-12)
+    assert_allclose(doc["pp_mpa"], 1000 * 9.81 * 3000 / 1e6, rtol=1e-12)
+    q = (np.sqrt(0.6**2 + 1) + 0.6) ** 2  # Jaeger & Cook
+    assert_allclose(doc["shmin_mpa"], doc["pp_mpa"] + (doc["sv_mpa"] - doc["pp_mpa"]) / q)
+    assert doc["shmin_lower_mpa"] <= doc["shmin_mpa"] <= doc["shmin_upper_mpa"]
+    assert doc["shmax_lower_mpa"] <= doc["shmax_mpa"] <= doc["shmax_upper_mpa"]
+    margins = [p["pore_pressure_margin_mpa"] for p in doc["planes"]]
+    assert margins == sorted(margins) and [p["rank"] for p in doc["planes"]] == [1, 2]
+    # 040/60 strikes along SHmax and dips near the optimal 60.5 deg: nearly critical
+    assert doc["planes"][0]["strike_deg"] == 40.0
+    assert abs(doc["planes"][0]["pore_pressure_margin_mpa"]) < 0.05
+
+
+def test_overrides_of_physics_and_magnitudes(capsys, tmp_path):
+    prof = tmp_path / "density.csv"
+    prof.write_text("# layered overburden\ntop_km,density_kg_m3\n0,2200\n1,2500\n")
+    doc = run_json(capsys, *ORIENT, "--density-profile", str(prof), "--pore-pressure-mpa",
+                   "33", "--shmin-mpa", "46", "--friction", "0.7", "--cohesion-mpa", "1",
+                   "--plane", "040/60")
+    assert_allclose(doc["sv_mpa"], (2200 + 2 * 2500) * 9.81e3 / 1e6, rtol=1e-12)
+    assert doc["pp_mpa"] == 33.0 and doc["shmin_mpa"] == 46.0
+    assert doc["sources"]["shmin_mpa"] == "user" and doc["sources"]["pp_mpa"] == "user"
+    # normal regime, measured Shmin: SHmax = Shmin + phi (Sv - Shmin) with the default phi 0.5
+    assert_allclose(doc["shmax_mpa"], 46 + 0.5 * (doc["sv_mpa"] - 46))
+    p = doc["planes"][0]
+    eff = p["normal_stress_mpa"] - 33.0
+    assert_allclose(p["pore_pressure_margin_mpa"], eff - (p["shear_stress_mpa"] - 1.0) / 0.7)
+
+
+def test_traces_from_a_geojson_file_get_right_hand_rule_strikes(capsys, tmp_path):
+    fc = {"type": "FeatureCollection", "features": [
+        {"type": "Feature", "properties": {"name": "Crossing", "dip_deg": 70,
+                                           "dip_direction_deg": "E"},
+         # digitised southward, slightly west of south then north: strikes near 0/360
+         "geometry": {"type": "LineString",
+                      "coordinates": [[-15.0, -19.9], [-15.001, -19.95], [-15.0, -20.0]]}},
+        {"type": "Feature", "properties": {"name": "Point plane", "strike_deg": 130,
+                                           "dip_deg": 80},
+         "geometry": {"type": "Point", "coordinates": [-15.02, -20.01]}},
+    ]}
+    path = tmp_path / "faults.geojson"
+    path.write_text(json.dumps(fc))
+    out_geo = tmp_path / "out.geojson"
+    doc = run_json(capsys, *ORIENT, "--faults", str(path), "--geojson", str(out_geo))
+    segs = [p for p in doc["planes"] if p["kind"] == "trace segment"]
+    assert len(segs) == 2
+    for s in segs:  # dipping east -> strike near north (0/360), dip direction near 90
+        assert min(s["strike_deg"], 360 - s["strike_deg"]) < 5.0
+        assert abs(s["dip_direction_deg"] - 90.0) < 5.0
+    geo = json.loads(out_geo.read_text())
+    assert geo["type"] == "FeatureCollection" and geo["caution"].startswith(CAUTION)
+    kinds = sorted(f["geometry"]["type"] for f in geo["features"])
+    assert kinds == ["LineString", "LineString", "Point"]
+
+
+def test_csv_file_carries_the_caution(capsys, tmp_path):
+    out = tmp_path / "planes.csv"
+    assert main([*BASE, *ORIENT, "--plane", "040/60", "--csv", str(out)]) == 0
+    text = out.read_text()
+    assert text.startswith(f"# caution: {CAUTION}")
+    import pandas as pd
+
+    frame = pd.read_csv(out, comment="#")
+    assert list(frame["strike_deg"]) == [40.0]
+    assert "pore_pressure_margin_mpa" in frame.columns
+    printed = capsys.readouterr().out
+    assert printed.startswith("CAUTION:") and printed.rstrip().endswith("licensed practice.")
+
+
+def test_sampling_reports_percentiles_and_probability(capsys):
+    doc = run_json(capsys, *ORIENT, "--plane", "040/60", "--plane", "130/80",
+                   "--friction-range", "0.5,0.7", "--pore-gradient-range-mpa-km", "9.8,12",
+                   "--azimuth-sigma-deg", "10", "--samples", "400", "--seed", "3",
+                   "--margin-threshold-mpa", "2")
+    unc = doc["uncertainty"]
+    assert unc["samples"] == 400 and "sigma 10 deg (user-given)" in unc["orientation_source"]
+    for p in doc["planes"]:
+        assert p["pore_pressure_margin_p05_mpa"] <= p["pore_pressure_margin_p50_mpa"] <= \
+            p["pore_pressure_margin_p95_mpa"]
+        assert 0.0 <= p["probability_margin_below_threshold"] <= 1.0
+    # the near-critical plane is far more likely below 2 MPa than the steep cross plane
+    assert doc["planes"][0]["probability_margin_below_threshold"] > 0.3
+    assert doc["planes"][1]["probability_margin_below_threshold"] < 0.05
+
+
+@pytest.mark.parametrize(
+    "args, fragment",
+    [
+        (["--plane", "040/60"], "--shmax-azimuth-deg"),          # no model, no orientation
+        ([*ORIENT, "--plane", "40-60"], "STRIKE/DIP"),
+        ([*ORIENT, "--plane", "040/95"], "dip must be between 0 and 90"),
+        ([*ORIENT, "--pore-pressure-mpa", "80"], "reaches the vertical stress"),
+        ([*ORIENT, "--shmin-mpa", "90"], "wrong side of Sv"),
+        ([*ORIENT, "--friction-range", "0.8,0.5"], "exceeds high"),
+    ],
+)
+def test_errors_are_specific(capsys, args, fragment):
+    assert main([*BASE, *args]) == 2
+    assert fragment in capsys.readouterr().err
+
+
+def test_dip_direction_along_the_trace_is_rejected_with_its_feature(capsys, tmp_path):
+    fc = {"type": "FeatureCollection", "features": [
+        {"type": "Feature", "properties": {"dip_deg": 60, "dip_direction_deg": 0},
+         "geometry": {"type": "LineString", "coordinates": [[-15, -20.1], [-15, -20.0]]}}]}
+    path = tmp_path / "f.geojson"
+    path.write_text(json.dumps(fc))
+    assert main([*BASE, *ORIENT, "--faults", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert "dip direction" in err and "row 1" in err
