@@ -37,6 +37,7 @@ DEFAULTS: dict = {
     "JOB_EXECUTOR": "process",  # "process" (isolated builds) or "thread"
     "MAX_QUEUED_JOBS": 32,
     "MODEL_CACHE_SIZE": 8,  # loaded models kept in memory (LRU)
+    "COMPUTE_THREADS": 4,  # threads answering predictions (bounded; see limits.py)
     "API_TOKEN": "",  # empty: no token needed; set via STRESSMAP_API_TOKEN, never in the repo
     "READS_NEED_TOKEN": False,
     "CORS_ORIGINS": [],
@@ -82,11 +83,12 @@ def create_app(test_config: dict | None = None) -> Flask:
     app.json = NumpyJSONProvider(app)
     register_error_handlers(app)
 
-    from stressmap_api import auth, jobs, store
+    from stressmap_api import auth, jobs, limits, store
 
     store.init_app(app)  # data directory, SQLite index, restart recovery
     jobs.init_app(app)  # bounded background worker pool
     auth.init_app(app)  # bearer token for reads (if configured) and CORS allow-list
+    limits.init_app(app)  # bounded compute pool for the per-request time limit
 
     from stressmap_api import blueprints
 

@@ -35,7 +35,7 @@ from concurrent.futures import Future, ProcessPoolExecutor, ThreadPoolExecutor
 from concurrent.futures.process import BrokenProcessPool
 
 from stressmap.errors import InputError, StressmapError
-from stressmap_api.store import Store, owner_token, register_owner
+from stressmap_api.store import Store, new_id, owner_token, register_owner
 
 __all__ = ["JobRunner", "get_jobs", "init_app", "JobQueueFull"]
 
@@ -131,6 +131,11 @@ class JobRunner:
 
     def submit(self, kind: str, fn, *args, **kwargs) -> str:
         """Queue ``fn(*args, progress=..., **kwargs)`` as a job of ``kind``; return its id."""
+        return self.submit_as(new_id(), kind, fn, *args, **kwargs)
+
+    def submit_as(self, job_id: str, kind: str, fn, *args, **kwargs) -> str:
+        """:meth:`submit` under an id the caller generated first (with :func:`new_id`), so that
+        rows referring to the job (e.g. a model's) can be written before the job can start."""
         if self.kind == "process":
             try:
                 pickle.dumps((fn, args, kwargs))
@@ -140,7 +145,7 @@ class JobRunner:
             if len(self._pending) >= self.max_queued:
                 raise JobQueueFull(
                     f"{len(self._pending)} jobs are already queued or running; retry later")
-            job_id = self.store.add_job(kind, self.owner)
+            self.store.add_job(kind, self.owner, job_id=job_id)
             try:
                 future = self._executor().submit(
                     _run_job, str(self.store.data_dir), job_id, fn, args, kwargs)

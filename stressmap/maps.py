@@ -119,6 +119,18 @@ def _as_1d(name: str, value, n: int | None = None) -> np.ndarray:
     return arr
 
 
+def _typical_spacing(x, y, span: float) -> float:
+    """Median nearest-neighbour distance of the points (plot units), or span/10 for < 2 points."""
+    if x.size < 2:
+        return 0.1 * span
+    from scipy.spatial import cKDTree
+
+    dist, _ = cKDTree(np.column_stack([x, y])).query(np.column_stack([x, y]), k=2)
+    d = dist[:, 1]
+    d = d[d > 0]
+    return float(np.median(d)) if d.size else 0.1 * span
+
+
 def _tick_segments(x, y, az_deg, half_len, kx):
     """(n, 2, 2) segment end points of centred ticks in plot coordinates (x stretched by kx)."""
     a = np.deg2rad(az_deg)
@@ -214,9 +226,8 @@ def shmax_map(lon, lat, azimuth_deg, regime_index, outline=None, *, observed=Non
 
     # Tick length: a fraction of the typical point spacing (fixed for every tick).
     n_good = int(good.sum())
-    area_deg2 = max((x1 - x0) * coslat * (y1 - y0), 1e-9)
-    spacing = math.sqrt(area_deg2 / max(n_good, 1))
-    half_len = 0.38 * min(spacing, 0.08 * span)
+    spacing = _typical_spacing(x[good] * coslat, y[good], span)
+    half_len = 0.34 * min(spacing, 0.08 * span)
 
     aspect = kx
     plot_h = (y1 - y0)
@@ -251,8 +262,8 @@ def shmax_map(lon, lat, azimuth_deg, regime_index, outline=None, *, observed=Non
     if sig is not None:
         ok = good & np.isfinite(sig)
         if ok.any():
-            polys = _fans(x[ok], y[ok], az[ok], sig[ok], half_len * 1.45, kx)
-            ax.add_collection(PolyCollection(list(polys), facecolors="#d08c1a", alpha=0.45,
+            polys = _fans(x[ok], y[ok], az[ok], sig[ok], half_len * 1.6, kx)
+            ax.add_collection(PolyCollection(list(polys), facecolors="#d08c1a", alpha=0.55,
                                              edgecolors="none", zorder=3))
 
     # Predicted ticks: a dark casing under a coloured core keeps light colours readable.

@@ -1,0 +1,391 @@
+"""Reading prediction requests: points, regions, weights, format (every problem named).
+
+Every function raises :class:`stressmap.errors.InputError` with one ``problem`` per bad field or
+row (``row`` is 1-based), which the service answers as a 422 problem document.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+
+from stressmap.constants import EARTH_RADIUS_KM
+from stressmap.errors import InputError, problem
+
+__all__ = [
+    "FORMATS",
+    "json_body",
+    "parse_points",
+    "parse_region",
+    "parse_weights",
+    "parse_format",
+    "parse_bbox_text",
+    "parse_weights_text",
+    "grid_size",
+]
+
+FORMATS = ("geojson", "csv", "netcdf", "png")
+_KM_PER_DEG = math.radians(1.0) * EARTH_RADIUS_KM
+_MAX_ERRORS = 20  # problems listed per request (the count of the rest is given)
+
+
+def json_body(request) -> object:
+    """The request body parsed as JSON, or a 400 problem naming where the JSON breaks."""
+    from stressmap_api.problems import ApiProblem
+
+    raw = request.get_data(cache=True)  # enforces MAX_CONTENT_LENGTH (413)
+    if not raw.strip():
+        raise ApiProblem(400, "Malformed JSON", "the request body is empty; send a JSON document",
+                         [problem("empty body", field="(body)")])
+    try:
+        return json.loads(raw)
+    except UnicodeDecodeError:
+        raise ApiProblem(400, "Malformed JSON", "the request body is not UTF-8 text",
+                         [problem("not UTF-8", field="(body)")]) from None
+    except json.JSONDecodeError as exc:
+        raise ApiProblem(400, "Malformed JSON",
+                         f"the request body is not valid JSON: {exc.msg} at line {exc.lineno} "
+                         f"column {exc.colno}",
+                         [problem(exc.msg, field="(body)", line=exc.lineno, column=exc.colno)]
+                         ) from None
+
+
+def _is_number(v) -> bool:
+    return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+
+
+def _check_lonlat(lon: np.ndarray, lat: np.ndarray, field_of, probs: list) -> None:
+    bad = np.flatnonzero((lat < -90.0) | (lat > 90.0))
+    for i in bad[:_MAX_ERRORS]:
+        probs.append(problem(f"latitude {lat[i]:g} is outside [-90, 90]", field=field_of(i),
+                             row=int(i) + 1))
+    bad = np.flatnonzero((lon < -360.0) | (lon > 360.0))
+    for i in bad[:_MAX_ERRORS]:
+        probs.append(problem(f"longitude {lon[i]:g} is outside [-360, 360]", field=field_of(i),
+                             row=int(i) + 1))
+
+
+def _raise(summary: str, probs: list, total: int | None = None):
+    if total is not None and total > len(probs):
+        probs.append(problem(f"... and {total - len(probs)} more problems"))
+    raise InputError(summary, probs)
+
+
+def parse_points(value, max_points: int) -> tuple[np.ndarray, np.ndarray, list[dict] | None]:
+    """``points`` as a list of [lon, lat] or a GeoJSON FeatureCollection of Points.
+
+    Returns lon (n,), lat (n,) in degrees and the features' properties (or None for plain pairs).
+
+    Examples
+    --------
+    >>> lon, lat, props = parse_points([[10, 50], [11.5, 51]], 10)
+    >>> lon.tolist(), lat.tolist(), props
+    ([10.0, 11.5], [50.0, 51.0], None)
+    >>> parse_points([[10, 50], [11, "x"]], 10)
+    Traceback (most recent call last):
+    ...
+    stressmap.errors.InputError: points: 1 of 2 points cannot be read
+      - row 2, field points[1]: expected [lon, lat] as two finite numbers, got [11, "x"]
+    """
+    if isinstance(value, dict):
+        return _parse_feature_points(value, max_points)
+    if not isinstance(value, list):
+        raise InputError("points must be a list of [lon, lat] pairs or a GeoJSON FeatureCollection",
+                         [problem(f"expected a list or a FeatureCollection, got "
+                                  f"{type(value).__name__}", field="points")])
+    _check_count(len(value), max_points)
+    if not value:
+        raise InputError("points is empty", [problem("give at least one [lon, lat] pair",
+                                                     field="points")])
+    try:
+        arr = np.asarray(value, dtype=float)
+        ok = arr.ndim == 2 and arr.shape[1] == 2 and bool(np.isfinite(arr).all()) and not any(
+            isinstance(v, bool) for pair in value for v in pair)
+    except (TypeError, ValueError):
+        ok = False
+    if not ok:
+        probs = []
+        bad = 0
+        for i, pair in enumerate(value):
+            if not (isinstance(pair, list) and len(pair) == 2 and all(_is_number(v) for v in pair)):
+                bad += 1
+                if len(probs) < _MAX_ERRORS:
+                    probs.append(problem(f"expected [lon, lat] as two finite numbers, got "
+                                         f"{_short(pair)}", field=f"points[{i}]", row=i + 1))
+        _raise(f"points: {bad} of {len(value)} points cannot be read", probs)
+    lon, lat = arr[:, 0].copy(), arr[:, 1].copy()
+    probs: list = []
+    _check_lonlat(lon, lat, lambda i: f"points[{i}]", probs)
+    if probs:
+        _raise("points: some coordinates are out of range", probs)
+    return lon, lat, None
+
+
+def _short(value) -> str:
+    text = json.dumps(value) if not isinstance(value, str) else repr(value)
+    return text if len(text) <= 60 else text[:57] + "..."
+
+
+def _check_count(n: int, max_points: int) -> None:
+    if max_points and n > max_points:
+        raise InputError(f"too many points: {n:,} given, this service answers at most "
+                         f"{int(max_points):,} per request",
+                         [problem(f"{n:,} points exceed the limit of {int(max_points):,}; split "
+                                  "the request", field="points")])
+
+
+def _parse_feature_points(fc: dict, max_points: int):
+    if fc.get("type") != "FeatureCollection" or not isinstance(fc.get("features"), list):
+        raise InputError("points given as an object must be a GeoJSON FeatureCollection",
+                         [problem("expected {\"type\": \"FeatureCollection\", \"features\": [...]}",
+                                  field="points")])
+    feats = fc["features"]
+    _check_count(len(feats), max_points)
+    if not feats:
+        raise InputError("points has no features", [problem("give at least one Point feature",
+                                                            field="points.features")])
+    lon = np.empty(len(feats))
+    lat = np.empty(len(feats))
+    props: list[dict] = []
+    probs: list = []
+    bad = 0
+    for i, feat in enumerate(feats):
+        where = f"points.features[{i}]"
+        geom = feat.get("geometry") if isinstance(feat, dict) else None
+        coords = geom.get("coordinates") if isinstance(geom, dict) else None
+        if not isinstance(feat, dict) or feat.get("type") != "Feature":
+            msg, field = "expected a GeoJSON Feature", where
+        elif not isinstance(geom, dict) or geom.get("type") != "Point":
+            msg = f"geometry must be a Point, got {_short(geom.get('type') if isinstance(geom, dict) else geom)}"
+            field = f"{where}.geometry"
+        elif not (isinstance(coords, list) and len(coords) in (2, 3)
+                  and all(_is_number(v) for v in coords)):
+            msg, field = f"coordinates must be [lon, lat], got {_short(coords)}", f"{where}.geometry.coordinates"
+        else:
+            lon[i], lat[i] = coords[0], coords[1]
+            p = feat.get("properties")
+            props.append(dict(p) if isinstance(p, dict) else {})
+            continue
+        bad += 1
+        props.append({})
+        if len(probs) < _MAX_ERRORS:
+            probs.append(problem(msg, field=field, row=i + 1))
+    if bad:
+        _raise(f"points: {bad} of {len(feats)} features cannot be read", probs)
+    _check_lonlat(lon, lat, lambda i: f"points.features[{i}].geometry.coordinates", probs)
+    if probs:
+        _raise("points: some coordinates are out of range", probs)
+    return lon, lat, props
+
+
+def _parse_bbox(value, field: str) -> tuple[float, float, float, float]:
+    if not (isinstance(value, list) and len(value) == 4 and all(_is_number(v) for v in value)):
+        raise InputError(f"{field} must be [W, S, E, N] in degrees",
+                         [problem(f"expected four finite numbers [W, S, E, N], got {_short(value)}",
+                                  field=field)])
+    w, s, e, n = (float(v) for v in value)
+    probs = []
+    if not -90.0 <= s < n <= 90.0:
+        probs.append(problem(f"south {s:g} must be below north {n:g}, both within [-90, 90]",
+                             field=field))
+    if not (-180.0 <= w <= 180.0 and -180.0 <= e <= 180.0) or w == e:
+        probs.append(problem(f"west {w:g} and east {e:g} must differ and lie within [-180, 180] "
+                             "(west > east means the box crosses the antimeridian)", field=field))
+    if probs:
+        raise InputError(f"{field} is not a valid bounding box", probs)
+    return w, s, e, n
+
+
+def parse_bbox_text(text: str | None, field: str = "bbox") -> tuple[float, float, float, float]:
+    """``W,S,E,N`` from a query string.
+
+    Examples
+    --------
+    >>> parse_bbox_text("-20,-30,0,-10")
+    (-20.0, -30.0, 0.0, -10.0)
+    """
+    if not text:
+        raise InputError(f"{field} is required: W,S,E,N in degrees",
+                         [problem("missing; give W,S,E,N in degrees", field=field)])
+    try:
+        values = [float(v) for v in text.split(",")]
+    except ValueError:
+        raise InputError(f"{field} must be four numbers W,S,E,N",
+                         [problem(f"cannot read {text[:60]!r} as W,S,E,N", field=field)]) from None
+    if not all(math.isfinite(v) for v in values):
+        values = []
+    return _parse_bbox(values, field)
+
+
+def _parse_spacing(value, field: str) -> float:
+    if not _is_number(value) or value <= 0:
+        raise InputError(f"{field} must be a positive number of km",
+                         [problem(f"expected a positive number (km), got {_short(value)}",
+                                  field=field)])
+    return float(value)
+
+
+def grid_size(bbox, spacing_km: float) -> int:
+    """Number of grid nodes over ``bbox`` at ``spacing_km`` (as :func:`stressmap.model.predict_grid`
+    lays them out: ``spacing_km`` along meridians and along the box's middle parallel).
+
+    Examples
+    --------
+    >>> grid_size((0.0, 0.0, 1.0, 1.0), 111.19)
+    4
+    >>> grid_size((170.0, 0.0, -170.0, 1.0), 111.19)  # across the antimeridian
+    42
+    """
+    w, s, e, n = bbox
+    if e < w:
+        e += 360.0
+    dlat = spacing_km / _KM_PER_DEG
+    dlon = dlat / max(math.cos(math.radians(0.5 * (s + n))), 1e-3)
+    nx = math.floor((e - w) / dlon + 1e-9) + 1
+    ny = math.floor((n - s) / dlat + 1e-9) + 1
+    return int(nx * ny)
+
+
+def _polygon(value, field: str):
+    """A shapely (Multi)Polygon from a GeoJSON geometry, Feature or FeatureCollection."""
+    import shapely
+    from shapely.geometry import shape
+
+    geom = value
+    if isinstance(value, dict) and value.get("type") == "Feature":
+        geom = value.get("geometry")
+    elif isinstance(value, dict) and value.get("type") == "FeatureCollection":
+        feats = value.get("features") or []
+        geom = feats[0].get("geometry") if len(feats) == 1 and isinstance(feats[0], dict) else None
+        if geom is None:
+            raise InputError(f"{field} must hold exactly one polygon feature",
+                             [problem("expected one Polygon or MultiPolygon", field=field)])
+    if not isinstance(geom, dict) or geom.get("type") not in ("Polygon", "MultiPolygon"):
+        raise InputError(f"{field} must be a GeoJSON Polygon or MultiPolygon",
+                         [problem(f"expected a Polygon or MultiPolygon geometry, got "
+                                  f"{_short(geom.get('type') if isinstance(geom, dict) else geom)}",
+                                  field=field)])
+    try:
+        poly = shape(geom)
+    except (ValueError, TypeError, AttributeError, IndexError, shapely.errors.ShapelyError) as exc:
+        raise InputError(f"{field} cannot be read as a polygon",
+                         [problem(f"invalid coordinates: {exc}", field=f"{field}.coordinates")]
+                         ) from None
+    if poly.is_empty or not poly.is_valid:
+        reason = shapely.is_valid_reason(poly) if not poly.is_empty else "empty"
+        raise InputError(f"{field} is not a valid polygon",
+                         [problem(f"invalid polygon: {reason}", field=f"{field}.coordinates")])
+    return poly
+
+
+def parse_region(value, top_spacing, max_grid_points: int):
+    """``region``: ``{"bbox": [W,S,E,N] | "polygon": GeoJSON, "spacing_km": K}``.
+
+    ``spacing_km`` may also be given at the top level of the request (not both). Returns
+    ``(bbox, spacing_km, polygon or None)``.
+    """
+    if not isinstance(value, dict):
+        raise InputError("region must be an object with bbox or polygon, and spacing_km",
+                         [problem(f"expected an object, got {type(value).__name__}", field="region")])
+    has_bbox, has_poly = "bbox" in value, "polygon" in value
+    if has_bbox == has_poly:
+        raise InputError("region needs exactly one of bbox and polygon",
+                         [problem("give either bbox [W, S, E, N] or polygon (GeoJSON)",
+                                  field="region")])
+    inner = value.get("spacing_km")
+    if inner is not None and top_spacing is not None:
+        raise InputError("spacing_km given twice",
+                         [problem("give spacing_km either in region or at the top level",
+                                  field="region.spacing_km")])
+    if inner is None and top_spacing is None:
+        raise InputError("spacing_km is required with region",
+                         [problem("missing; grid spacing in km", field="region.spacing_km")])
+    field = "region.spacing_km" if inner is not None else "spacing_km"
+    spacing = _parse_spacing(inner if inner is not None else top_spacing, field)
+    polygon = None
+    if has_bbox:
+        bbox = _parse_bbox(value["bbox"], "region.bbox")
+    else:
+        polygon = _polygon(value["polygon"], "region.polygon")
+        bbox = tuple(float(v) for v in polygon.bounds)
+    check_grid(bbox, spacing, max_grid_points, field)
+    return bbox, spacing, polygon
+
+
+def check_grid(bbox, spacing_km: float, max_grid_points: int, field: str = "spacing_km") -> None:
+    n = grid_size(bbox, spacing_km)
+    if max_grid_points and n > max_grid_points:
+        raise InputError(f"too many grid points: about {n:,} at {spacing_km:g} km spacing, this "
+                         f"service answers at most {int(max_grid_points):,} per request",
+                         [problem(f"about {n:,} grid nodes exceed the limit of "
+                                  f"{int(max_grid_points):,}; use a larger spacing_km or a "
+                                  "smaller region", field=field)])
+
+
+def parse_spacing_text(text: str | None, field: str = "spacing_km") -> float:
+    if text is None or text == "":
+        raise InputError(f"{field} is required", [problem("missing; grid spacing in km",
+                                                          field=field)])
+    try:
+        value = float(text)
+    except ValueError:
+        value = float("nan")
+    if not math.isfinite(value):
+        raise InputError(f"{field} must be a positive number of km",
+                         [problem(f"cannot read {text[:40]!r} as a number", field=field)])
+    return _parse_spacing(value, field)
+
+
+def parse_weights(value) -> dict | None:
+    """``weights``: null or an object of load group -> finite number."""
+    if value is None:
+        return None
+    if not isinstance(value, dict):
+        raise InputError("weights must be an object of load group -> number",
+                         [problem(f"expected an object, got {type(value).__name__}",
+                                  field="weights")])
+    probs = [problem(f"expected a finite number, got {_short(v)}", field=f"weights.{k}")
+             for k, v in value.items() if not _is_number(v)]
+    if probs:
+        raise InputError("weights must be finite numbers", probs)
+    return {str(k): float(v) for k, v in value.items()}
+
+
+def parse_weights_text(text: str | None) -> dict | None:
+    """``group:value,group:value`` (``=`` works too) from a query string.
+
+    Examples
+    --------
+    >>> parse_weights_text("ridge:1.5,subduction=0.5")
+    {'ridge': 1.5, 'subduction': 0.5}
+    >>> parse_weights_text("") is None
+    True
+    """
+    if not text:
+        return None
+    out = {}
+    for item in text.split(","):
+        name, sep, raw = item.replace("=", ":").partition(":")
+        try:
+            value = float(raw)
+            if not (sep and name.strip() and math.isfinite(value)):
+                raise ValueError
+        except ValueError:
+            raise InputError("weights must read group:value,group:value",
+                             [problem(f"cannot read {item[:60]!r} as group:value",
+                                      field="weights")]) from None
+        out[name.strip()] = value
+    return out
+
+
+def parse_format(value) -> str:
+    """Output format: geojson (default), csv, netcdf or png."""
+    if value is None:
+        return "geojson"
+    if not isinstance(value, str) or value.lower() not in FORMATS:
+        raise InputError(f"format must be one of {', '.join(FORMATS)}",
+                         [problem(f"unknown format {_short(value)}; use {', '.join(FORMATS)}",
+                                  field="format")])
+    return value.lower()
