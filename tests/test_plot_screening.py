@@ -1,0 +1,111 @@
+"""Pictures of a screening: textbook geometry, colours tied to margins, the caution footer."""
+
+from __future__ import annotations
+
+import io
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+from stressmap import CAUTION
+from stressmap import plot_screening as ps
+from stressmap import screening as sc
+from stressmap.sitescreen import parse_request, screen
+
+
+@pytest.fixture(scope="module")
+def result():
+    rng = np.random.default_rng(11)
+    planes = [{"strike_deg": float(s), "dip_deg": float(d)}
+              for s, d in zip(rng.uniform(0, 360, 40), rng.uniform(5, 90, 40))]
+    faults = {"type": "FeatureCollection", "features": [
+        {"type": "Feature", "properties": {"name": "A", "dip_deg": 60, "dip_direction_deg": 130},
+         "geometry": {"type": "LineString",
+                      "coordinates": [[-15.0, -20.0], [-14.9, -19.9], [-14.8, -19.85]]}},
+        {"type": "Feature", "properties": {"name": "B", "strike_deg": 10, "dip_deg": 85},
+         "geometry": {"type": "Point", "coordinates": [-15.05, -19.95]}}]}
+    req = parse_request({"site": [-15.0, -20.0], "depth_km": 3.0, "regime": "strike-slip",
+                         "shmax_azimuth_deg": 40.0, "cohesion_mpa": 2.0, "planes": planes,
+                         "faults": faults,
+                         "uncertainty": {"friction_range": [0.5, 0.7], "samples": 200}})
+    return screen(req)
+
+
+def _by_gid(ax, gid):
+    return [a for a in ax.get_children() if a.get_gid() == gid]
+
+
+def test_mohr_circles_envelope_and_points_follow_textbook_geometry(result):
+    fig = ps.mohr_figure(result)
+    ax = fig.axes[0]
+    s1, s2, s3 = np.sort(np.linalg.eigvalsh(result.stress_ned))[::-1] - result.site["pp_mpa"]
+    circles = sorted(((c.center[0], c.radius) for c in _by_gid(ax, "mohr-circle")),
+                     key=lambda t: t[1])
+    expected = sorted((((a + b) / 2, (b - a) / 2) for a, b in ((s3, s1), (s2, s1), (s3, s2))),
+                      key=lambda t: t[1])
+    assert_allclose(circles, expected, atol=1e-9)
+    (env,) = _by_gid(ax, "failure-envelope")
+    x, y = env.get_data()
+    assert_allclose(y, 2.0 + result.site["friction"] * x, atol=1e-12)  # tau = C + mu sigma'
+    # Every plane's (sigma', tau) lies inside the big circle and outside both small ones
+    # (Mohr's three-circle theorem; Jaeger, Cook & Zimmerman, from memory).
+    (pts,) = _by_gid(ax, "fault-points")
+    xy = pts.get_offsets()
+    d = lambda c: np.hypot(xy[:, 0] - c[0], xy[:, 1])  # noqa: E731
+    assert np.all(d(((s1 + s3) / 2,)) <= (s1 - s3) / 2 + 1e-9)
+    assert np.all(d(((s1 + s2) / 2,)) >= (s1 - s2) / 2 - 1e-9)
+    assert np.all(d(((s2 + s3) / 2,)) >= (s2 - s3) / 2 - 1e-9)
+    assert_allclose(pts.get_array(), result.planes["pore_pressure_margin_mpa"])
+    assert ax.get_aspect() == 1.0
+
+
+def test_stress_polygon_plot(result):
+    import shapely
+
+    fig = ps.polygon_figure(result)
+    ax = fig.axes[0]
+    (poly,) = _by_gid(ax, "stress-polygon")
+    s = result.site
+    verts = poly.get_xy()[:4]
+    assert_allclose(verts, sc.stress_polygon(s["sv_mpa"], s["pp_mpa"], s["friction"]))
+    (est,) = _by_gid(ax, "central-estimate")
+    x, y = est.get_data()
+    assert (x[0], y[0]) == (s["shmin_mpa"], s["shmax_mpa"])
+    assert shapely.Polygon(verts).buffer(1e-6).contains(shapely.Point(x[0], y[0]))
+    # the regime dividers sit at Sv
+    (h,) = _by_gid(ax, "sv-line-shmax")
+    assert_allclose(h.get_ydata(), s["sv_mpa"])
+    assert len(_by_gid(ax, "estimate-samples")) == 1
+
+
+def test_map_colours_traces_by_margin_and_scale_bar_is_true(result):
+    from pyproj import Geod
+
+    fig = ps.fault_map_figure(result)
+    ax = fig.axes[0]
+    (lc,) = _by_gid(ax, "fault-traces")
+    seg = result.planes["kind"] == "trace segment"
+    assert_allclose(lc.get_array(), result.planes["pore_pressure_margin_mpa"][seg])
+    assert lc.get_cmap().name == "cividis"
+    (bar,) = _by_gid(ax, "scale-bar")
+    (x0, x1), (y0, _) = bar.get_data()
+    label = [t.get_text() for t in ax.texts if t.get_text().endswith(" km")][0]
+    km = float(label.split()[0])
+    # independent distance: pyproj.Geod on the 6371 km sphere
+    _, _, dist_m = Geod(a=6371000.0, f=0.0).inv(x0, y0, x1, y0)
+    assert_allclose(dist_m / 1e3, km, rtol=0.01)
+
+
+@pytest.mark.parametrize("fn", ["mohr_png", "polygon_png", "fault_map_png"])
+def test_png_has_the_caution_footer(result, fn):
+    import matplotlib.image as mpimg
+
+    fig = getattr(ps, fn.replace("_png", "_figure"))(result)
+    footer = " ".join(t.get_text() for t in fig.texts if t.get_gid() == "caution-footer")
+    assert CAUTION.replace(" ", "") in footer.replace("\n", "").replace(" ", "")
+    assert "licensed practice" in footer
+    png = getattr(ps, fn)(result)
+    assert png[:8] == b"\x89PNG\r\n\x1a\n"
+    img = mpimg.imread(io.BytesIO(png), format="png")
+    assert img.shape[0] > 400 and img.shape[1] > 600
