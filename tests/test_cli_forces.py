@@ -34,7 +34,7 @@ def test_age_100_json_gives_the_issue_magnitudes(capsys):
     assert 1e13 < f["slab_pull_full"] < 1e14
     assert 1e12 < f["slab_pull"] < 1e13
     assert out["inputs"]["age_myr"] == 100.0
-    # T&S eq. 4-115 (from memory): thermal thickness 2.32 sqrt(kappa t) = 130 km at 100 Myr
+    # T&S ch. 4 (from memory): thermal thickness 2.32 sqrt(kappa t) = 130 km at 100 Myr
     assert_allclose(out["derived"]["thermal_thickness_km"], 2.32 * np.sqrt(1e-6 * 100 * 3.15576e13) / 1e3, rtol=3e-3)
     # Parsons & Sclater 1977 (from memory): 2500 + 350 sqrt(100) = 6000 m
     assert_allclose(out["derived"]["seafloor_depth_km"], 6.0, rtol=0.03)

@@ -21,7 +21,7 @@ from stressmap import forces
 from stressmap.constants import G_M_S2, M_PER_S_PER_MM_PER_YR, SECONDS_PER_MYR
 from stressmap.errors import InputError
 
-# Textbook constants (T&S section 6-20 ridge push example, from memory).
+# Textbook constants (T&S ch. 6 ridge-push example, from memory).
 TEXTBOOK = {
     "half_space": {
         "surface_temperature_c": 0.0,
@@ -56,8 +56,9 @@ def test_load_defaults_returns_a_copy():
 
 
 def test_ridge_push_at_100_myr_is_the_textbook_4e12():
-    # T&S section 6-20 (from memory): about 3.9e12 N/m for 100 Myr old lithosphere with these
-    # constants; issue 2 asks for "about 4e12". Our g = 9.81 and Julian Myr give 4.13e12.
+    # T&S ch. 6 (from memory): about 3.9e12 N/m for 100 Myr old lithosphere with these
+    # constants, a rounded figure; issue 2 asks for "about 4e12". The closed form evaluated with
+    # exactly these constants, g = 9.81 m/s^2 and a Julian Myr gives 4.13e12 (6 % above).
     f = float(forces.ridge_push_n_per_m(100.0, TEXTBOOK))
     assert_allclose(f, 3.9e12, rtol=0.1)
     # and the closed form itself, evaluated here term by term
@@ -76,7 +77,7 @@ def test_numeric_pressure_integral_equals_closed_form_for_half_space(age):
 
 def test_ridge_push_by_quad_of_the_erf_profile():
     # Independent route: F = (rho_m - rho_w) g w^2 / 2 + g rho_m alpha int_0^inf s (Tm - T(s)) ds,
-    # with Tm - T from scipy.special.erfc and the integral by scipy.integrate.quad (T&S section 6-20).
+    # with Tm - T from scipy.special.erfc and the integral by scipy.integrate.quad (T&S ch. 6, from memory).
     age = 60.0
     c = 2.0 * np.sqrt(1e-6 * age * SECONDS_PER_MYR)
     # erfc(10) ~ 2e-45: integrating to 20 c is integrating to infinity
@@ -137,7 +138,7 @@ def test_slab_pull_is_g_times_quad_integrated_anomaly_times_depth():
 
 
 def test_full_slab_pull_order_of_magnitude():
-    # T&S section 6-20 (from memory): the full negative buoyancy of an old slab through the upper
+    # T&S ch. 6 (from memory): the full negative buoyancy of an old slab through the upper
     # mantle is a few 1e13 N/m, an order above ridge push.
     full = float(forces.slab_pull_n_per_m(100.0, 660.0, 1.0, TEXTBOOK))
     assert 1e13 < full < 1e14
@@ -145,7 +146,7 @@ def test_full_slab_pull_order_of_magnitude():
 
 
 def test_slab_pull_is_dip_independent_by_explicit_inclined_integration():
-    # Geometry (T&S section 6-20): the down-dip gravity component g sin(dip) acting on a slab of
+    # Geometry (T&S ch. 6, from memory): the down-dip gravity component g sin(dip) acting on a slab of
     # down-dip length L / sin(dip). Integrate along the inclined slab with the trapezoid rule.
     anomaly = 7.3e6  # kg/m^2, any value
     depth_m = 660e3

@@ -55,7 +55,7 @@ def gdh1():
 
 def test_half_space_temperature_matches_scipy_erf(textbook):
     # Independent evaluation: T = T0 + (Tm - T0) erf(z / (2 sqrt(kappa t))) with scipy.special.erf
-    # (T&S eq. 4-113, from memory).
+    # (T&S ch. 4, from memory).
     z_km = np.linspace(0.0, 200.0, 41)[:, None]
     age = np.array([0.5, 5.0, 40.0, 120.0])[None, :]
     expected = 1300.0 * special.erf(z_km * 1e3 / (2.0 * np.sqrt(1e-6 * age * SECONDS_PER_MYR)))
@@ -112,7 +112,7 @@ def test_temperature_broadcasts_ages_against_depths():
 
 
 def test_half_space_thermal_thickness_is_2_32_sqrt_kappa_t(textbook):
-    # T&S eq. 4-115 (from memory): the 0.9 isotherm lies at 2.32 sqrt(kappa t).
+    # T&S ch. 4 (from memory): the 0.9 isotherm lies at 2.32 sqrt(kappa t).
     age = np.array([1.0, 10.0, 100.0])
     expected = 2.32 * np.sqrt(1e-6 * age * SECONDS_PER_MYR) / 1e3
     assert_allclose(thermal.thermal_thickness_km(age, params=textbook), expected, rtol=3e-3)
@@ -181,7 +181,7 @@ def test_plate_subsidence_flattens_with_age(gdh1):
 
 def test_plate_matches_half_space_when_young(gdh1):
     # Analytic limit: before the cooling front reaches the plate base (t << a^2 / kappa) the plate
-    # model is half-space cooling (T&S section 4-17, from memory). Same constants for both.
+    # model is half-space cooling (T&S ch. 4, from memory). Same constants for both.
     hs = {"half_space": {k: v for k, v in GDH1.items() if k != "plate_thickness_km"}}
     age = np.array([0.5, 2.0, 5.0, 10.0, 15.0])
     assert_allclose(thermal.subsidence_km(age, "plate", gdh1), thermal.subsidence_km(age, "half_space", hs), rtol=5e-3)
