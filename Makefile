@@ -13,7 +13,7 @@ $(STAMP): pyproject.toml
 	touch $(STAMP)
 
 serve: $(STAMP)
-	$(BIN)/stressmap serve
+	$(BIN)/stressmap serve --demo
 
 test: $(STAMP)
 	$(BIN)/python -m pytest stressmap tests
