@@ -188,6 +188,7 @@ class _Size:
         self.vertex_xyz = ring_xyz[use]
         self.vertex_fine = np.maximum(fine[use], 1e-3)
         self.vertex_slope = slope[use]
+        self.max_slope = max([self.grading] + ([float(self.vertex_slope.max())] if use.any() else []))
         self.tree = None
         if use.any():
             from scipy.spatial import cKDTree
@@ -306,56 +307,77 @@ def _split_boundary(bxyz, barc, bfrac, which, ring_xyz):
 # interior
 
 
-def _hex_lattice(x0, y0, x1, y1, s):
-    """Equilateral lattice points with spacing s covering [x0, x1] x [y0, y1]."""
+def _cell_lattice(cx0, cy0, c, s):
+    """Points of the global equilateral lattice (spacing s) inside square cells [x0, x0 + c)."""
     dy = s * np.sqrt(3.0) / 2.0
-    nx = int(np.ceil((x1 - x0) / s)) + 2
-    ny = int(np.ceil((y1 - y0) / dy)) + 2
-    if nx * ny > 40_000_000:
-        raise MemoryError("lattice too large")
-    iy, ix = np.divmod(np.arange(nx * ny), nx)
-    x = x0 - s + ix * s + (iy % 2) * (s / 2.0)
-    y = y0 - dy + iy * dy
-    return x, y
+    nj = int(np.ceil(c / dy)) + 1
+    ni = int(np.ceil(c / s)) + 2
+    j = np.ceil(cy0 / dy)[:, None] + np.arange(nj)[None, :]  # (cells, nj)
+    y = j * dy
+    off = (j % 2) * (s / 2.0)
+    i0 = np.floor((cx0[:, None] - off) / s)
+    x = (i0[:, :, None] + np.arange(ni)[None, None, :]) * s + off[:, :, None]  # (cells, nj, ni)
+    y = np.broadcast_to(y[:, :, None], x.shape)
+    inside = ((x >= cx0[:, None, None]) & (x < cx0[:, None, None] + c)
+              & (y >= cy0[:, None, None]) & (y < cy0[:, None, None] + c))
+    return x[inside], y[inside]
 
 
 def _interior_points(poly, bxy, size: _Size, base: float):
-    """Lattice points inside the polygon, in size bands; returns (x, y) in plane km."""
+    """Lattice points inside the polygon in size levels; returns (k, 2) plane km.
+
+    Level k has spacing ``base * 0.85**k`` and takes the places whose target plane size lies in
+    [spacing, spacing / 0.85). Levels are generated cell by cell: square cells are kept (and
+    subdivided for finer levels) only where the size function, which changes at most by
+    ``lip`` per unit distance, can reach the level's band.
+    """
     import shapely
     from scipy.spatial import cKDTree
 
     x0, y0, x1, y1 = poly.bounds
-    # plane sizes along the boundary and at a coarse sample give the range of levels
-    gx, gy = _hex_lattice(x0, y0, x1, y1, max(x1 - x0, y1 - y0) / 60.0)
-    inside = shapely.contains_xy(poly, gx, gy)
-    hs = np.concatenate([size.plane_km(gx[inside], gy[inside]), size.plane_km(bxy[:, 0], bxy[:, 1])])
-    kmax = int(np.ceil(np.log(size.min_km * 0.999 / base) / np.log(_RHO))) + 1
-    kmin = int(np.floor(np.log(hs.max() * 1.001 / base) / np.log(_RHO)))
-    kmin = min(kmin, 0)
-    kmax = max(kmax, 1)
-    xs, ys, hp = [], [], []
-    # regions of the fine levels: disks around refinement sources (plane km, generous)
+    rmax = np.sqrt(max(x0 * x0, x1 * x1) + max(y0 * y0, y1 * y1)) / _R
+    scale_max = float(sphere.stereographic_scale(rmax, 0.0))
+    hmax = size.edge * scale_max
+    lip = 1.05 * (size.max_slope * scale_max**2 + hmax * rmax / (2.0 * _R)) + 1e-9
+    kmin = min(int(np.floor(np.log(hmax * 1.0001 / base) / np.log(_RHO))), 0)
+    kmax = max(int(np.ceil(np.log(size.min_km * 0.9999 / base) / np.log(_RHO))) + 1, 1)
+    # cells of side ~ f * spacing: the size function changes by at most ~0.35-0.7 spacing
+    # across a cell, so only cells near the level's band are visited
+    f = min(2.0, 0.5 / lip)
+    c = 2.0 * f * base * _RHO**kmin
+    nx = int(np.ceil((x1 - x0) / c)) + 1
+    ny = int(np.ceil((y1 - y0) / c)) + 1
+    iy, ix = np.divmod(np.arange(nx * ny), nx)
+    cx0 = x0 - 0.5 * c + ix * c
+    cy0 = y0 - 0.5 * c + iy * c
+    xs, ys, hs = [], [], []
     for k in range(kmin, kmax):
         s = base * _RHO**k
         upper = s / _RHO
-        if k <= 0:
-            boxes = [(x0, y0, x1, y1)]
-        else:
-            boxes = _fine_boxes(size, upper, (x0, y0, x1, y1))
-        for bx0, by0, bx1, by1 in boxes:
-            x, y = _hex_lattice(bx0, by0, bx1, by1, s)
+        last = k == kmax - 1
+        while c > 2.0 * f * s and len(cx0):
+            cx0 = np.concatenate([cx0, cx0 + c / 2, cx0, cx0 + c / 2])
+            cy0 = np.concatenate([cy0, cy0, cy0 + c / 2, cy0 + c / 2])
+            c /= 2.0
+        if not len(cx0):
+            break
+        hc = size.plane_km(cx0 + c / 2, cy0 + c / 2)
+        reach = lip * c * np.sqrt(0.5)
+        here = (hc - reach < upper) & ((hc + reach >= s) | last)
+        if here.any():
+            x, y = _cell_lattice(cx0[here], cy0[here], c, s)
             h = size.plane_km(x, y)
-            band = (h >= s) & (h < upper) if k < kmax - 1 else (h < upper)
-            if k == kmin:
-                band = h >= (s if k < kmax - 1 else 0.0)
+            band = (h < upper) & ((h >= s) | last) if k > kmin else (h >= s) | last
             x, y, h = x[band], y[band], h[band]
             inside = shapely.contains_xy(poly, x, y)
             xs.append(x[inside])
             ys.append(y[inside])
-            hp.append(h[inside])
+            hs.append(h[inside])
+        finer = hc - reach < s
+        cx0, cy0 = cx0[finer], cy0[finer]
     x = np.concatenate(xs)
     y = np.concatenate(ys)
-    h = np.concatenate(hp)
+    h = np.concatenate(hs)
     # a tiny deterministic jitter (1e-4 of the spacing) spares Qhull the exact co-circularity
     # of a perfect lattice, which makes it several times slower
     rng = np.random.default_rng(12345)
@@ -373,66 +395,6 @@ def _interior_points(poly, bxy, size: _Size, base: float):
         drop = close.any(axis=1)
         pts, h = pts[~drop], h[~drop]
     return pts
-
-
-def _fine_boxes(size: _Size, upper: float, bounds):
-    """Plane boxes that contain every place where the plane size is below ``upper``."""
-    x0, y0, x1, y1 = bounds
-    g = size.grading
-    boxes = []
-    srcs = []
-    for pxyz, fine, radius in size.points:
-        srcs.append((pxyz, fine, radius))
-    for xyz, fine, slope in zip(size.vertex_xyz, size.vertex_fine, size.vertex_slope):
-        # a slope below the grading reaches further: scale the radius to the grading
-        srcs.append((xyz, float(fine), max((upper - fine) / slope - (upper - fine) / g, 0.0)))
-    # the plane scale is >= 1, so sphere size below upper is necessary; reach in sphere km
-    scale_max = float(sphere.stereographic_scale((x1 - x0 + abs(x0)) / _R, (y1 - y0 + abs(y0)) / _R))
-    if srcs:
-        pxyz = np.array([s[0] for s in srcs])
-        fine = np.array([s[1] for s in srcs])
-        radius = np.array([s[2] for s in srcs])
-        reach = np.maximum((upper - fine) / g, 0.0) + radius
-        ok = fine < upper
-        px, py = _to_plane(pxyz[ok], size.centre)
-        r = reach[ok] * scale_max * 1.05 + upper
-        if ok.any():
-            bx0 = np.maximum(px - r, x0)
-            bx1 = np.minimum(px + r, x1)
-            by0 = np.maximum(py - r, y0)
-            by1 = np.minimum(py + r, y1)
-            good = (bx0 < bx1) & (by0 < by1)
-            boxes += list(zip(bx0[good], by0[good], bx1[good], by1[good]))
-    for poly, fine in size.polygons:
-        if fine < upper:
-            r = (upper - fine) / g * scale_max * 1.05 + upper
-            a, b, c, d = poly.bounds
-            boxes.append((max(a - r, x0), max(b - r, y0), min(c + r, x1), min(d + r, y1)))
-    return _merge_boxes(boxes)
-
-
-def _merge_boxes(boxes):
-    """Merge overlapping boxes (few boxes; the loop is over boxes, not points)."""
-    boxes = [list(b) for b in boxes]
-    merged = True
-    while merged and len(boxes) > 1:
-        merged = False
-        out = []
-        for b in boxes:
-            for o in out:
-                if b[0] <= o[2] and o[0] <= b[2] and b[1] <= o[3] and o[1] <= b[3]:
-                    o[0], o[1] = min(o[0], b[0]), min(o[1], b[1])
-                    o[2], o[3] = max(o[2], b[2]), max(o[3], b[3])
-                    merged = True
-                    break
-            else:
-                out.append(b)
-        boxes = out
-    return [tuple(b) for b in boxes]
-
-
-# --------------------------------------------------------------------------------------------
-# triangulation
 
 
 def _encroached(bxy, pts):
