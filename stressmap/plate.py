@@ -74,40 +74,34 @@ _NUMERIC_PARAMS = {
 }
 _SENSES = ("dextral", "sinistral")
 
-# Used only while stressmap/data/defaults.toml lacks the [sheet]/[drag]/[mesh]/[ridge_push]
-# tables; the values there win. Sources are given in defaults.toml.
-_FALLBACK_DEFAULTS = {
-    "sheet": {"thickness_km": 100.0, "young_gpa": 70.0, "poisson": 0.25},
-    "drag": {"closure": "torque_balance", "viscosity_pa_s": 1.0e19, "channel_km": 200.0},
-    "mesh": {"edge_km": 50.0, "grading": 0.25},
-    "ridge_push": {"mode": "edge"},
+#: Fields of the document tables whose defaults come from stressmap/data/defaults.toml (the
+#: tables of the same names, where each value's source is given).
+_DEFAULT_FIELDS = {
+    "sheet": ("thickness_km", "young_gpa", "poisson"),
+    "drag": ("closure", "viscosity_pa_s", "channel_km"),
+    "mesh": ("edge_km", "grading"),
+    "ridge_push": ("mode",),
 }
 
 
 def plate_defaults() -> dict:
     """Defaults for the ``sheet``, ``drag``, ``mesh`` and ``ridge_push`` tables of a document.
 
-    Read from ``stressmap/data/defaults.toml`` (via ``stressmap.forces.load_defaults``).
+    Read from the tables of the same names in ``stressmap/data/defaults.toml`` (via
+    ``stressmap.forces.load_defaults``), so the force calculator and plate models agree.
 
     Examples
     --------
     >>> d = plate_defaults()
     >>> sorted(d)
     ['drag', 'mesh', 'ridge_push', 'sheet']
-    >>> d["drag"]["closure"]
-    'torque_balance'
+    >>> d["drag"]["closure"], d["ridge_push"]["mode"]
+    ('torque_balance', 'edge')
     """
-    try:
-        from stressmap.forces import load_defaults
+    from stressmap.forces import load_defaults
 
-        loaded = load_defaults()
-    except ImportError:  # pragma: no cover - only before stressmap.forces exists
-        loaded = {}
-    out = {}
-    for table, fallback in _FALLBACK_DEFAULTS.items():
-        got = loaded.get(table, {}) if isinstance(loaded, dict) else {}
-        out[table] = {**fallback, **{k: v for k, v in got.items() if k in fallback}}
-    return out
+    loaded = load_defaults()
+    return {table: {k: loaded[table][k] for k in keys} for table, keys in _DEFAULT_FIELDS.items()}
 
 
 @dataclass(frozen=True)
