@@ -5,7 +5,7 @@ the stored unit solution of load group ``g`` (weight 1.0 = the forces the model 
 specifies). Calibration chooses non-negative weights that minimise the uncertainty-weighted axial
 misfit between predicted and observed SHmax azimuths,
 
-    F(w) = sum_i k_i (1 - cos 2 delta_i) / sum_i k_i,        k_i = weight_i / sigma_i**2,
+    F(w) = sum_i k_i (1 - cos 2 delta_i) / sum_i k_i,        k_i = weight_i ~ 1 / sigma_i**2,
 
 which is the negative log-likelihood (up to constants) of a von Mises distribution of the doubled
 angle, the usual model for axial data (Mardia & Jupp 2000, "Directional Statistics", ch. 9 -- from
@@ -87,9 +87,12 @@ def axial_terms(unit):
 
 
 def indicator_kappa(sigma_deg=None, weight=None, n=None):
-    """Misfit weights ``k_i = weight_i / sigma_i**2`` (sigma in degrees; missing parts count 1).
+    """Misfit weights ``k_i`` of indicators: their ``weight`` where given, else ``1 / sigma_i**2``.
 
-    Only ratios matter (the objective is normalised by ``sum k``).
+    The indicator reader's weight is ``(20 / sigma_deg)**2`` (:mod:`stressmap.indicators`), i.e.
+    already proportional to ``1 / sigma**2``, the von Mises concentration of an angle with
+    standard deviation sigma; only ratios matter (the objective is normalised by ``sum k``).
+    Missing or unusable values count 1; negative weights count 0.
 
     Examples
     --------
@@ -97,8 +100,8 @@ def indicator_kappa(sigma_deg=None, weight=None, n=None):
     [0.01, 0.0025]
     >>> indicator_kappa(None, [1.0, 0.5]).tolist()
     [1.0, 0.5]
-    >>> indicator_kappa([10.0, np.nan], [2.0, 1.0]).tolist()   # missing sigma: weight alone
-    [0.02, 1.0]
+    >>> indicator_kappa([10.0, 20.0], [4.0, np.nan]).tolist()   # weight wins; missing: sigma
+    [4.0, 0.0025]
     """
     arrays = [np.asarray(a, dtype=float) for a in (sigma_deg, weight) if a is not None]
     if n is None:
@@ -112,7 +115,7 @@ def indicator_kappa(sigma_deg=None, weight=None, n=None):
         k = np.where(ok, 1.0 / np.where(ok, s, 1.0) ** 2, 1.0)
     if weight is not None:
         w = np.asarray(weight, dtype=float)
-        k = k * np.where(np.isfinite(w) & (w >= 0), w, 0.0)
+        k = np.where(np.isfinite(w), np.maximum(w, 0.0), k)
     return k
 
 
@@ -451,8 +454,10 @@ def calibrate_arrays(unit, observed_deg, kappa=None, *, groups=None, default_wei
     -----
     ``significance`` holds ``p_value`` = (1 + #{random data sets whose calibrated misfit <= the
     observed calibrated misfit}) / (1 + n_random), the null distribution's mean and 5th
-    percentile, the same test for the misfit *reduction* (``reduction_p_value``), and the analytic
-    reference ``random_misfit_deg`` = 45.
+    percentile, the same test for the misfit *reduction* (``reduction_p_value``), the analytic
+    reference ``random_misfit_deg`` = 45 and the analytic one-sided p-value of the calibrated misfit
+    against it (:func:`stressmap.circular.random_misfit_significance`; it ignores the freedom of the
+    fit, which the Monte Carlo ``p_value`` accounts for).
     """
     unit = np.asarray(unit, dtype=float)
     d, e = axial_terms(unit)
@@ -521,7 +526,11 @@ def calibrate_arrays(unit, observed_deg, kappa=None, *, groups=None, default_wei
     ci[ref] = w0[ref]
 
     # Significance: calibrate the same model to uniformly random azimuths.
-    significance = {"random_misfit_deg": 45.0, "n_random": int(n_random), "seed": int(seed)}
+    from stressmap.circular import random_misfit_significance
+
+    _, z_after, p_analytic = random_misfit_significance(np.abs(residuals), kappa)
+    significance = {"random_misfit_deg": 45.0, "n_random": int(n_random), "seed": int(seed),
+                    "analytic_z": float(z_after), "analytic_p_value": float(p_analytic)}
     if n_random:
         null_after = np.empty(n_random)
         null_reduction = np.empty(n_random)

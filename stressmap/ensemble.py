@@ -547,8 +547,9 @@ def grid_coordinates(bbox, spacing_km):
     """1-D longitude and latitude vectors of a regular grid over ``bbox = (W, S, E, N)``.
 
     The latitude step is ``spacing_km`` along a meridian (sphere of radius 6371 km); the longitude
-    step keeps ``spacing_km`` at the box's middle latitude. ``E < W`` crosses the antimeridian;
-    longitudes are returned in [-180, 180).
+    step keeps ``spacing_km`` at the box's middle latitude (the grid of
+    :func:`stressmap.model.predict_grid`). ``E < W`` crosses the antimeridian; longitudes then run
+    past 180 so that they stay increasing (CF coordinates).
 
     Examples
     --------
@@ -557,7 +558,7 @@ def grid_coordinates(bbox, spacing_km):
     ([0.0, 1.0], [-1.0, 0.0, 1.0])
     >>> lon, lat = grid_coordinates((179.5, -0.5, -179.5, 0.5), 55.597463322279364)
     >>> lon.round(3).tolist()
-    [179.5, -180.0, -179.5]
+    [179.5, 180.0, 180.5]
     """
     from stressmap.constants import EARTH_RADIUS_KM
 
@@ -579,10 +580,9 @@ def grid_coordinates(bbox, spacing_km):
     if e <= w:
         e += 360.0
     dlat = np.degrees(spacing / EARTH_RADIUS_KM)
-    dlon = dlat / max(np.cos(np.radians(0.5 * (s + n))), 1e-6)
+    dlon = dlat / max(np.cos(np.radians(0.5 * (s + n))), 1e-3)
     lat = s + dlat * np.arange(int(np.floor((n - s) / dlat + 1e-9)) + 1)
     lon = w + dlon * np.arange(int(np.floor((e - w) / dlon + 1e-9)) + 1)
-    lon = np.mod(lon + 180.0, 360.0) - 180.0
     return lon, lat
 
 
@@ -708,7 +708,7 @@ def ensemble_grid(model, bbox, spacing_km, members=1000, distributions=None, see
     """
     lon1, lat1 = grid_coordinates(bbox, spacing_km)
     lon2, lat2 = np.meshgrid(lon1, lat1)
-    pts = ensemble_points(model, lon2.ravel(), lat2.ravel(), members, distributions, seed,
+    pts = ensemble_points(model, np.mod(lon2.ravel() + 180.0, 360.0) - 180.0, lat2.ravel(), members, distributions, seed,
                           percentiles, weights, progress, **kwargs)
     shape = lat2.shape
     ds = pts.drop_vars(["lon", "lat"])

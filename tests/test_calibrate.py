@@ -202,3 +202,36 @@ def test_too_few_indicators():
     unit, az = synthetic([1.0, 1.0, 1.0, 1.0], 2, 5.0, seed=0)
     with pytest.raises(InputError, match="too few"):
         calibrate_arrays(unit, az, None, n_bootstrap=0, n_random=0)
+
+
+# ----------------------------------------------------------------------------- on a built model
+
+def test_model_calibration_recovers_known_weights(coarse_demo_model):
+    # Indicators at random interior points, predicted with known weights (stressmap.model
+    # .predict_points) plus 8-degree normal noise, with sigma 8 in the table.
+    import geopandas as gpd
+
+    from stressmap.calibrate import calibrate
+    from stressmap.model import predict_points
+
+    m = coarse_demo_model
+    truth = {g: w for g, w in zip(m.groups, [1.0, 1.0, 0.4, 1.0, 2.5])}
+    rng = np.random.default_rng(8)
+    lon, lat = rng.uniform(-30, 0, 400), rng.uniform(-32, -6, 400)
+    pred = predict_points(m, lon, lat, weights=truth)
+    az = np.mod(pred["shmax_azimuth_deg"].values + rng.normal(0, 8.0, 400), 180)
+    table = gpd.GeoDataFrame({"shmax_azimuth_deg": az, "sigma_deg": np.full(400, 8.0)},
+                             geometry=gpd.points_from_xy(lon, lat), crs="EPSG:4326")
+    bounds = {g: [0.0, 4.0] for g in m.groups}
+    res = calibrate(m, table, bounds=bounds, reference="ridge", n_bootstrap=60, n_random=10,
+                    seed=1)
+    inside = pred["inside"].values
+    assert res.settings["n_outside"] == int((~inside).sum())
+    assert res.n_indicators == int(inside.sum())
+    assert np.isnan(res.residuals_deg[~inside]).all()
+    assert res.misfit_after_deg < res.misfit_before_deg
+    for g, w, (lo, hi), ok in zip(res.groups, res.weights, res.weights_ci, res.constrained):
+        if ok:   # weights the data constrain must be recovered within their interval
+            assert lo - 0.05 <= truth[g] <= hi + 0.05, (g, w, lo, hi)
+    assert res.constrained[res.groups.index("collision")]
+    assert_allclose(res.weights[res.groups.index("collision")], 0.4, atol=0.15)

@@ -246,3 +246,48 @@ def test_chunk_statistics_doctest_case():
     out = chunk_statistics(np.array([[[0.0, 2.0, 0.0]]]), np.array([[1.0], [3.0]]), [50])
     assert_allclose(out["s_hmax_mpa"], [[4.0]])
     assert out["prob_reverse"][0] == 0.0 and out["prob_strike_slip"][0] == 1.0
+
+
+# ----------------------------------------------------------------------------- on a built model
+
+def test_model_ensemble_of_one_member_equals_predict_points(coarse_demo_model):
+    from stressmap.ensemble import ensemble_points
+    from stressmap.model import predict_points
+
+    m = coarse_demo_model
+    lon = np.array([-20.0, -10.0, -25.0, 0.0, 60.0])
+    lat = np.array([-20.0, -15.0, -10.0, -25.0, 10.0])   # the last point is outside the plate
+    weights = {g: 0.5 + 0.3 * i for i, g in enumerate(m.groups)}
+    w = np.array([[weights[g] for g in m.groups]])
+    ens = ensemble_points(m, lon, lat, weights=w, percentiles=[50])
+    ref = predict_points(m, lon, lat, weights=weights)
+    inside = ref["inside"].values
+    assert_array_equal(ens["inside"].values, inside)
+    assert not inside[-1] and inside[:-1].all()
+    assert_allclose(ens["shmax_azimuth_deg"].values[inside], ref["shmax_azimuth_deg"].values[inside],
+                    atol=1e-9)
+    assert_allclose(ens["s_hmax_mpa"].values[inside, 0], ref["s_hmax_mpa"].values[inside],
+                    rtol=1e-12)
+    assert_allclose(ens["regime_index"].values[inside], ref["regime_index"].values[inside],
+                    atol=1e-12)
+    assert_array_equal(ens["regime"].values[inside], ref["regime"].values[inside])
+    assert np.isnan(ens["shmax_azimuth_deg"].values[-1]) and ens["regime"].values[-1] == ""
+
+
+def test_model_ensemble_grid_and_pull_fraction(coarse_demo_model):
+    from stressmap.ensemble import ensemble_grid
+
+    m = coarse_demo_model
+    dist = {"subduction": {"distribution": "uniform", "low": 0.06, "high": 0.24,
+                           "parameter": "pull_fraction"},      # reference 0.12 from the document
+            "collision": {"distribution": "log-uniform", "low": 0.3, "high": 3.0}}
+    a = ensemble_grid(m, (-30, -30, -5, -5), 400.0, members=200, distributions=dist, seed=3)
+    b = ensemble_grid(m, (-30, -30, -5, -5), 400.0, members=200, distributions=dist, seed=3)
+    assert a.sizes["lat"] >= 5 and a.sizes["lon"] >= 5 and a.attrs["Conventions"] == "CF-1.8"
+    assert a.equals(b)
+    w = a["member_weight"].sel(group="subduction").values
+    assert 0.5 <= w.min() and w.max() <= 2.0     # pull fraction 0.06 .. 0.24 over 0.12
+    inside = a["inside"].values.astype(bool)
+    p = (a["prob_normal"] + a["prob_strike_slip"] + a["prob_reverse"]).values
+    assert_allclose(p[inside], 1.0)
+    assert np.all(a["shmax_std_deg"].values[inside] >= 0)
