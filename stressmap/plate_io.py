@@ -78,13 +78,13 @@ def read_boundary_file(path) -> tuple[list, list]:
 
     Examples
     --------
-    >>> import json, tempfile, os
+    >>> import json, tempfile, pathlib
     >>> fc = {"type": "FeatureCollection", "features": [
     ...     {"type": "Feature", "properties": {"kind": "free", "age_myr": None},
     ...      "geometry": {"type": "MultiLineString", "coordinates": [[[0, 0], [1, 0]], [[1, 0], [0, 1]]]}}]}
     >>> with tempfile.TemporaryDirectory() as d:
-    ...     path = os.path.join(d, "b.geojson")
-    ...     _ = open(path, "w").write(json.dumps(fc))
+    ...     path = pathlib.Path(d, "b.geojson")
+    ...     _ = path.write_text(json.dumps(fc))
     ...     lines, polys = read_boundary_file(path)
     >>> len(lines), len(polys), lines[0]["properties"]
     (2, 0, {'kind': 'free'})
@@ -142,10 +142,10 @@ def read_params_file(path) -> dict:
 
     Examples
     --------
-    >>> import tempfile, os
+    >>> import tempfile, pathlib
     >>> with tempfile.TemporaryDirectory() as d:
-    ...     path = os.path.join(d, "p.toml")
-    ...     _ = open(path, "w").write('name = "x"\\n[mesh]\\nedge_km = 30\\n')
+    ...     path = pathlib.Path(d, "p.toml")
+    ...     _ = path.write_text('name = "x"\\n[mesh]\\nedge_km = 30\\n')
     ...     read_params_file(path)
     {'name': 'x', 'mesh': {'edge_km': 30}}
     """
