@@ -29,6 +29,7 @@ import logging
 import os
 import pickle
 import signal
+import sys
 import threading
 import time
 from concurrent.futures import Future, ProcessPoolExecutor, ThreadPoolExecutor
@@ -86,6 +87,15 @@ def _run_job(data_dir: str, job_id: str, fn, args: tuple, kwargs: dict) -> None:
 def _worker_init() -> None:
     # Ctrl-C in a terminal reaches the whole process group; the service decides when workers end.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    # If the service process dies (even by SIGKILL), its workers die with it instead of finishing
+    # builds nobody will record (Linux prctl PR_SET_PDEATHSIG; elsewhere a no-op).
+    if sys.platform.startswith("linux"):
+        try:
+            import ctypes
+
+            ctypes.CDLL("libc.so.6", use_errno=True).prctl(1, signal.SIGKILL)  # PR_SET_PDEATHSIG
+        except OSError:  # pragma: no cover - unusual libc
+            pass
     logging.basicConfig(level=logging.WARNING, format="%(levelname)s %(name)s: %(message)s")
 
 

@@ -235,10 +235,20 @@ class Store:
         if not self.model_dir(model_id).is_dir():
             raise StorageError(f"model directory for {model_id} is missing")
         build_time = summary.get("build_time") if isinstance(summary, dict) else None
-        self._execute(
-            "UPDATE models SET status='ready', error=NULL, build_time=?, summary=? WHERE id=?",
-            (build_time or utc_now(), json.dumps(summary, default=_json_default), model_id),
-        )
+        try:
+            with self._connection() as con:
+                cur = con.execute(
+                    "UPDATE models SET status='ready', error=NULL, build_time=?, summary=? "
+                    "WHERE id=? AND status IN ('queued','building')",
+                    (build_time or utc_now(), json.dumps(summary, default=_json_default), model_id))
+                changed = cur.rowcount
+        except sqlite3.Error as exc:
+            raise StorageError(f"index database error: {exc}") from exc
+        if changed != 1:
+            # The build was given up meanwhile (restart recovery, deletion): its files must not
+            # become visible under a model that says failed or no longer exists.
+            shutil.rmtree(self.model_dir(model_id), ignore_errors=True)
+            raise StorageError(f"model {model_id} was marked failed or deleted while it was built")
 
     def _row_to_meta(self, row: sqlite3.Row) -> dict:
         status, error = row["status"], row["error"]

@@ -1,0 +1,32 @@
+"""Helpers shared by the service tests (not a test module)."""
+
+from __future__ import annotations
+
+import copy
+import json
+import time
+from importlib import resources
+
+
+def demo_document() -> dict:
+    text = resources.files("stressmap.data").joinpath("demo_plate.json").read_text(encoding="utf-8")
+    return json.loads(text)
+
+
+def coarse_demo_document(edge_km: float = 250.0) -> dict:
+    """The fictional demo plate with a coarse uniform mesh, so that a build takes about a second."""
+    doc = copy.deepcopy(demo_document())
+    doc["mesh"] = {"edge_km": float(edge_km)}
+    return doc
+
+
+def wait_for_job(get, job_url: str, states=("done", "failed"), timeout: float = 120.0) -> dict:
+    """Poll ``get(job_url)`` (returning the job JSON) until its status is in ``states``."""
+    deadline = time.monotonic() + timeout
+    job = get(job_url)
+    while job["status"] not in states:
+        if time.monotonic() > deadline:
+            raise AssertionError(f"job still {job['status']} after {timeout} s: {job}")
+        time.sleep(0.05)
+        job = get(job_url)
+    return job
