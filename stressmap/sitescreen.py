@@ -64,6 +64,7 @@ DEFAULTS = {
     "seed": 0,
     "margin_threshold_mpa": 0.0,
     "ensemble_members": 0,
+    "ensemble_default_members": 500,
     "max_dip_direction_misfit_deg": 60.0,
 }
 
@@ -758,26 +759,36 @@ def _sample(result: ScreenResult, model, profile, rho_mean, code, phi, az, orien
 
     codes = np.full(n, code)
     phis = uniform(req.shape_ratio_range, phi)
-    use_ensemble = (model is not None and req.ensemble_members > 0 and
-                    req.shmax_azimuth_deg is None)
+    dists = req.ensemble_distributions
+    model_dists = ((getattr(model, "definition", None) or {}).get("ensemble") or {}).get(
+        "distributions") if model is not None else None
+    use_ensemble = (model is not None and req.shmax_azimuth_deg is None and
+                    (req.ensemble_members > 0 or bool(dists) or bool(model_dists)))
+    if use_ensemble and not dists and not model_dists:
+        dists = {g: {"distribution": "uniform", "low": 0.5, "high": 1.5} for g in model.groups}
+        result.notes.append("ensemble: no force distributions given; every load group's weight "
+                            "drawn uniformly from 0.5 to 1.5 (default)")
     if use_ensemble:
-        ens = ensemble_orientation(model, req.lon, req.lat, req.ensemble_members, req.seed,
-                                   req.ensemble_distributions)
+        members = req.ensemble_members or DEFAULTS["ensemble_default_members"]
+        ens = ensemble_orientation(model, req.lon, req.lat, members, req.seed, dists)
         pick = rng.integers(0, ens["shmax_azimuth_deg"].size, n)
         azs = ens["shmax_azimuth_deg"][pick]
-        ok = np.isfinite(azs)
-        azs = np.where(ok, azs, az)
+        azs = np.where(np.isfinite(azs), azs, az)
         if req.regime is None:
             ens_codes = ens["regime_code"][pick]
             codes = np.where(ens_codes >= 0, ens_codes, code)
         if req.shape_ratio is None and req.shape_ratio_range is None:
             phis = np.where(np.isfinite(ens["shape_ratio"][pick]), ens["shape_ratio"][pick], phi)
         info["orientation_source"] = (
-            f"model ensemble (stressmap.ensemble, {req.ensemble_members} members, resampled): "
+            f"model ensemble (stressmap.ensemble, {members} members, resampled): "
             "SHmax azimuth" + (", regime" if req.regime is None else "") +
             (" and shape ratio" if req.shape_ratio is None and req.shape_ratio_range is None
              else "") + " per member")
-        info["ensemble_members"] = req.ensemble_members
+        info["ensemble_members"] = members
+        info["ensemble_distributions"] = dists or model_dists
+        from stressmap.circular import axial_std_deg
+
+        info["ensemble_azimuth_std_deg"] = float(axial_std_deg(ens["shmax_azimuth_deg"]))
     else:
         sigma = DEFAULTS["azimuth_sigma_deg"] if req.azimuth_sigma_deg is None else \
             req.azimuth_sigma_deg
@@ -785,6 +796,10 @@ def _sample(result: ScreenResult, model, profile, rho_mean, code, phi, az, orien
         how = "user-given" if req.azimuth_sigma_deg is not None else "default"
         info["orientation_source"] = (f"normal spread of the SHmax azimuth about "
                                       f"{az:.1f} deg, sigma {sigma:g} deg ({how}); regime fixed")
+        if model is not None and req.shmax_azimuth_deg is None:
+            result.notes.append("orientation spread: the model has no ensemble distributions; "
+                                "give ensemble_members or ensemble_distributions to sample the "
+                                "model ensemble instead")
         info["azimuth_sigma_deg"] = sigma
     shmax, shmin = sc.complete_magnitudes(sv, pp, mu, codes, phis, req.shmax_mpa, req.shmin_mpa)
     samples = {"sv_mpa": sv, "pp_mpa": pp, "friction": mu, "shmax_azimuth_deg": azs,

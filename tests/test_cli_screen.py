@@ -142,3 +142,25 @@ def test_dip_direction_along_the_trace_is_rejected_with_its_feature(capsys, tmp_
     assert main([*BASE, *ORIENT, "--faults", str(path)]) == 2
     err = capsys.readouterr().err
     assert "dip direction" in err and "row 1" in err
+
+
+def test_with_a_model_directory_and_overrides(capsys, coarse_demo_dir, coarse_demo_model):
+    from stressmap.model import predict_points
+
+    doc = run_json(capsys, "--model", str(coarse_demo_dir), "--plane", "040/60")
+    pred = predict_points(coarse_demo_model, np.array([-15.0]), np.array([-20.0]))
+    assert_allclose(doc["shmax_azimuth_deg"], float(pred["shmax_azimuth_deg"].values[0]))
+    assert doc["regime"] == str(pred["regime"].values[0])
+    assert doc["sources"] == {**doc["sources"], "shmax_azimuth_deg": "model", "regime": "model",
+                              "shape_ratio": "model"}
+    over = run_json(capsys, "--model", str(coarse_demo_dir), "--plane", "040/60",
+                    "--regime", "reverse", "--shape-ratio", "0.2")
+    assert over["regime"] == "reverse" and over["sources"]["regime"] == "user"
+    assert over["shmin_mpa"] >= over["sv_mpa"]  # reverse: Sv is the least stress
+    assert_allclose(over["shmax_azimuth_deg"], doc["shmax_azimuth_deg"])
+
+
+def test_site_outside_the_model_plate(capsys, coarse_demo_dir):
+    assert main(["screen", "--site=150,60", "--depth-km", "3", "--model",
+                 str(coarse_demo_dir)]) == 2
+    assert "outside" in capsys.readouterr().err

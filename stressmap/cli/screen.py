@@ -111,9 +111,26 @@ def build_request(args) -> dict:
         value = getattr(args, key)
         if value is not None:
             unc[key] = value
+    if args.ensemble_distributions:
+        unc["ensemble_distributions"] = _json_or_file(args.ensemble_distributions,
+                                                      "--ensemble-distributions")
     if unc:
         doc["uncertainty"] = unc
     return doc
+
+
+def _json_or_file(text: str, option: str):
+    """Inline JSON, or the path of a JSON file."""
+    raw = text
+    path = Path(text)
+    if not text.lstrip().startswith("{") and path.is_file():
+        raw = path.read_text(encoding="utf-8")
+    try:
+        return json.loads(raw)
+    except ValueError as exc:
+        raise InputError(f"{option}: not JSON and not a JSON file ({exc})",
+                         [problem("expected a JSON object or a file holding one",
+                                  field=option)]) from None
 
 
 def _fmt(v, nd=2):
@@ -262,6 +279,10 @@ def register(subparsers) -> None:
                         "(default 15)")
     g.add_argument("--ensemble-members", type=int,
                    help="sample azimuth/regime/shape ratio from a model ensemble of this size")
+    g.add_argument("--ensemble-distributions", metavar="JSON|FILE",
+                   help="load-group distributions for the ensemble, e.g. "
+                        "'{\"ridge\": {\"distribution\": \"uniform\", \"low\": 0.5, "
+                        "\"high\": 1.5}}' (default: the model's, else each group 0.5-1.5)")
     g.add_argument("--margin-threshold-mpa", type=float,
                    help="report the probability that the margin falls below this (default 0)")
     g = p.add_argument_group("files")
