@@ -155,7 +155,7 @@ def std_from_resultant_deg(r):
     r = np.asarray(r, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
         out = np.degrees(0.5 * np.sqrt(-2.0 * np.log(np.clip(r, 0.0, 1.0))))
-    return np.where(r > 1e-12, out, np.where(np.isnan(r), np.nan, np.inf))
+    return np.where(r > 1e-12, out, np.where(np.isnan(r), np.nan, np.inf)) + 0.0  # no -0.0
 
 
 def rayleigh_axial(theta_deg, axis=-1):

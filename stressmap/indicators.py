@@ -288,6 +288,8 @@ def prepare_indicators(table, skip_bad: bool = False, problems=None, name: str =
          lambda i: f"unknown regime {regime_raw[i]!r}; one of normal, strike-slip, reverse")
     regime = mapped.fillna("").to_numpy(object)
 
+    order = {c: i for i, c in enumerate(["geometry"] + _INPUT_COLUMNS)}
+    probs.sort(key=lambda p: (p.get("row") or 0, order.get(p.get("field"), len(order))))
     if probs and not skip_bad:
         raise IndicatorFileError(f"{len(probs)} problem(s) in {name}", probs)
     keep = ~bad
@@ -333,7 +335,10 @@ def prepare_indicators(table, skip_bad: bool = False, problems=None, name: str =
         "shmax_azimuth_deg": shmax,
     }
     for col in FOCAL_COLUMNS:
-        data[col] = np.where(fk, foc[col], np.nan) if col != "mechanism_class" else mech_class
+        # Angles rounded to 1e-9 degree: removes round-off such as plunges of 2e-15 or -0.0.
+        data[col] = (np.round(np.where(fk, foc[col], np.nan), 9) + 0.0
+                     if col != "mechanism_class" else mech_class)
+    data["shmax_azimuth_deg"] = np.mod(np.round(shmax, 9), 180.0) + 0.0
     data["shmax_span_deg"] = np.where(fk, foc["shmax_span_deg"], np.nan)
     frame = pd.DataFrame(data, index=pd.Index(rows[k], name="row"))
     extra = [c for c in table.columns if c not in data and c not in ("geometry",)]

@@ -204,7 +204,7 @@ def indicators_csv(frame, columns=None, meta: dict | None = None) -> str:
         if out[c].dtype == object:
             out[c] = out[c].map(_csv_cell)
     head = "".join(f"# {k}: {v}\n" for k, v in (meta or {}).items())
-    return head + out.to_csv(index=False, float_format="%.6g", lineterminator="\n")
+    return head + out.to_csv(index=False, float_format="%.10g", lineterminator="\n")
 
 
 def _csv_cell(v):
