@@ -856,6 +856,29 @@ def _plane_records(result: ScreenResult) -> list[dict]:
     return [_plain(r) for r in frame.to_dict("records")]
 
 
+def _fault_summary(result: ScreenResult) -> list[dict]:
+    """One entry per input fault or plane: its least margin over its segments, ranked."""
+    import pandas as pd
+
+    pl = result.planes
+    if not pl or pl["strike_deg"].size == 0:
+        return []
+    frame = pd.DataFrame({k: pl[k] for k in ("kind", "feature", "name", "rank",
+                                             "pore_pressure_margin_mpa", "slip_tendency")})
+    frame["kind"] = frame["kind"].replace({"trace segment": "trace"})
+    grouped = frame.groupby(["kind", "feature"], sort=False)
+    out = grouped.agg(name=("name", "first"), segments=("rank", "size"),
+                      least_margin_mpa=("pore_pressure_margin_mpa", "min"),
+                      max_slip_tendency=("slip_tendency", "max"),
+                      worst_rank=("rank", "min")).reset_index()
+    if "probability_margin_below_threshold" in pl:
+        frame["p"] = pl["probability_margin_below_threshold"]
+        out["max_probability_margin_below_threshold"] = frame.groupby(
+            ["kind", "feature"], sort=False)["p"].max().to_numpy()
+    out = out.sort_values("worst_rank", kind="stable")
+    return [_plain(r) for r in out.to_dict("records")]
+
+
 def result_json(result: ScreenResult) -> dict:
     """The JSON document of a screening (the CLI's ``--json`` and the service's answer)."""
     site = dict(result.site)
@@ -865,6 +888,7 @@ def result_json(result: ScreenResult) -> dict:
     if result.model_info:
         out["model"] = result.model_info
     out["planes"] = _plane_records(result)
+    out["faults"] = _fault_summary(result)
     out["uncertainty"] = result.uncertainty
     out["notes"] = list(result.notes)
     out["conventions"] = ("stress compression positive, MPa; effective stress = total - Pp; "
@@ -892,6 +916,7 @@ def result_geojson(result: ScreenResult) -> dict:
         features.append({"type": "Feature", "properties": rec, "geometry": g})
     doc = result_json(result)
     doc.pop("planes")
+    doc.pop("faults")
     return {"type": "FeatureCollection", "features": features, **doc}
 
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 import math
 
+import numpy as np
 import pytest
 
 from stressmap.errors import InputError
@@ -77,3 +78,24 @@ def test_missing_file_and_bad_json(tmp_path):
     empty.write_text(json.dumps({"type": "FeatureCollection", "features": []}))
     with pytest.raises(InputError, match="no faults"):
         read_fault_file(empty)
+
+
+def test_demo_faults_are_fictional_and_lie_on_the_demo_plate():
+    from importlib import resources
+
+    import shapely
+
+    from stressmap.plate import parse_plate
+
+    data = resources.files("stressmap.data")
+    fc = json.loads(data.joinpath("demo_faults.geojson").read_text(encoding="utf-8"))
+    assert "FICTIONAL" in fc["description"] and "fictional" in fc["name"]
+    assert all(f["properties"]["fictional"] is True for f in fc["features"])
+    assert all("(fictional)" in f["properties"]["name"] for f in fc["features"])
+    plate = parse_plate(json.loads(data.joinpath("demo_plate.json").read_text(encoding="utf-8")))
+    ring = shapely.Polygon(plate.ring_lonlat)
+    parsed = faults_from_geojson(fc)
+    pts = [xy for line in parsed["traces"]["lines"] for xy in line]
+    pts += list(zip(parsed["planes"]["lon"], parsed["planes"]["lat"]))
+    pts.append((fc["site"]["lon"], fc["site"]["lat"]))
+    assert shapely.contains_xy(ring, *np.array(pts).T).all()

@@ -1,0 +1,85 @@
+"""Screening requests end to end (no model): validation, measured magnitudes, traces, sampling."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+from stressmap import screening as sc
+from stressmap.errors import InputError
+from stressmap.sitescreen import parse_request, result_json, screen
+
+SITE = {"site": [-15.0, -20.0], "depth_km": 3.0, "shmax_azimuth_deg": 40.0}
+
+
+def run(**kw):
+    return result_json(screen(parse_request({**SITE, **kw})))
+
+
+def test_both_measured_magnitudes_set_the_regime():
+    doc = run(shmax_mpa=100.0, shmin_mpa=50.0, planes=["000/90"])
+    assert doc["regime"] == "strike-slip" and doc["sources"]["regime"] == "measured magnitudes"
+    assert doc["shmax_mpa"] == 100.0 and doc["shmin_mpa"] == 50.0
+    with pytest.raises(InputError) as err:
+        run(regime="normal", shmax_mpa=100.0, shmin_mpa=50.0)
+    assert err.value.problems[0]["field"] == "regime"
+
+
+def test_magnitudes_beyond_the_frictional_limit_are_flagged():
+    # SHmax 160, Shmin 40 with Pp 29.4: (160-29.4)/(40-29.4) = 12.3 >> 3.12 (Jaeger & Cook)
+    doc = run(shmax_mpa=160.0, shmin_mpa=40.0, planes=["040/90"])
+    assert any("exceed the frictional limit" in n for n in doc["notes"])
+    # an optimally oriented vertical plane (Jaeger & Cook angle from SHmax) is beyond failure
+    beta = 45.0 - 0.5 * np.degrees(np.arctan(0.6))
+    doc = run(shmax_mpa=160.0, shmin_mpa=40.0, planes=[f"{40 + beta}/90"])
+    assert doc["planes"][0]["pore_pressure_margin_mpa"] < 0
+    assert doc["planes"][0]["at_or_beyond_failure"] is True
+
+
+def test_gradient_density_profile_and_pore_gradient():
+    doc = run(regime="reverse", density_profile={"top_km": [0.0], "density_kg_m3": [2100.0],
+                                                 "gradient_kg_m3_per_km": [150.0]},
+              pore_gradient_mpa_km=11.0)
+    # Sv = g (rho0 z + grad z^2 / 2), analytic integral of a linear profile
+    assert_allclose(doc["sv_mpa"], 9.81e3 * (2100 * 3 + 150 * 9 / 2) / 1e6, rtol=1e-12)
+    assert_allclose(doc["pp_mpa"], 33.0)
+    q = sc.frictional_limit_ratio(0.6)
+    assert_allclose(doc["shmax_mpa"], 33.0 + q * (doc["sv_mpa"] - 33.0))
+
+
+def test_request_problems_are_collected():
+    with pytest.raises(InputError) as err:
+        parse_request({"site": [500, 95], "depth_km": 0, "friction": -1,
+                       "density_kg_m3": 2400, "density_profile": {"density_kg_m3": [2400]},
+                       "pore_gradient_mpa_km": 10, "pore_pressure_mpa": 30,
+                       "planes": "040/60"})
+    fields = {p["field"] for p in err.value.problems}
+    assert {"site", "depth_km", "friction", "density_profile", "pore_pressure_mpa",
+            "planes"} <= fields
+
+
+def test_sampling_is_reproducible_and_pore_range_moves_margins_one_to_one():
+    planes = ["040/60", "130/80"]
+    base = dict(regime="normal", planes=planes, shmin_mpa=45.0, shmax_mpa=55.0)
+    a = run(**base, uncertainty={"samples": 500, "seed": 4, "pore_pressure_range_mpa": [25, 30],
+                                 "azimuth_sigma_deg": 0})
+    b = run(**base, uncertainty={"samples": 500, "seed": 4, "pore_pressure_range_mpa": [25, 30],
+                                 "azimuth_sigma_deg": 0})
+    assert a["planes"] == b["planes"]
+    # with fixed measured magnitudes and orientation, margin = fixed - Pp: its 5-95 % band
+    # spans the 5-95 % band of a uniform 25-30 MPa Pp, i.e. 0.9 * 5 MPa = 4.5 MPa
+    for p in a["planes"]:
+        width = p["pore_pressure_margin_p95_mpa"] - p["pore_pressure_margin_p05_mpa"]
+        assert_allclose(width, 4.5, atol=0.25)
+
+
+def test_traces_without_dip_direction_dip_right_of_digitising():
+    faults = {"type": "FeatureCollection", "features": [
+        {"type": "Feature", "properties": {"dip_deg": 50},
+         "geometry": {"type": "LineString", "coordinates": [[-15.0, -20.0], [-15.0, -20.1]]}}]}
+    doc = run(regime="normal", faults=faults)
+    seg = doc["planes"][0]
+    assert_allclose(seg["strike_deg"], 180.0, atol=1e-6)   # digitised southward
+    assert_allclose(seg["dip_direction_deg"], 270.0, atol=1e-6)
+    assert any("right of their digitised direction" in n for n in doc["notes"])
