@@ -181,7 +181,8 @@ def spherical_triangle_area(a, b, c) -> np.ndarray:
     a = np.asarray(a, dtype=float)
     b = np.asarray(b, dtype=float)
     c = np.asarray(c, dtype=float)
-    num = np.sum(a * np.cross(b, c), axis=-1)
+    # a . (b x c) written with differences keeps full relative precision for tiny triangles
+    num = np.sum(a * np.cross(b - a, c - a), axis=-1)
     den = 1.0 + np.sum(a * b, axis=-1) + np.sum(b * c, axis=-1) + np.sum(c * a, axis=-1)
     return 2.0 * np.arctan2(num, den)
 
@@ -236,7 +237,8 @@ def spherical_polygon_area(ring, radius_km: float = EARTH_RADIUS_KM) -> float:
         ref = ring[0]
     total = float(np.sum(_fan_areas(ring, ref)))
     # the region on the left has area total (mod 4 pi); keep the smaller region, signed
-    total = (total + 2.0 * np.pi) % (4.0 * np.pi) - 2.0 * np.pi
+    if abs(total) > 2.0 * np.pi:  # (reduce only when needed: it would cost precision)
+        total = (total + 2.0 * np.pi) % (4.0 * np.pi) - 2.0 * np.pi
     return total * radius_km**2
 
 
@@ -261,8 +263,8 @@ def polygon_centroid_xyz(ring) -> np.ndarray:
     c = normalize(np.sum(w[:, None] * normalize(ref + ring + nxt), axis=0))
     if not np.any(c):
         c = ref
-    if np.sum(w) < 0:  # ring runs clockwise: the region on the left is the far side
-        c = -c
+    # a clockwise ring has negative weights: the sum then points to the centroid of the region
+    # on its left, the far side (the first moment of the whole sphere is zero)
     return c
 
 
