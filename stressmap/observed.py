@@ -206,7 +206,14 @@ def observed_grid(indicators, bbox, radius_km, spacing_km=None, min_count=3,
     """
     import xarray as xr
 
-    spacing_km = 0.5 * float(radius_km) if spacing_km is None else float(spacing_km)
+    try:
+        radius_km = float(radius_km)
+    except (TypeError, ValueError):
+        radius_km = float("nan")
+    if not (np.isfinite(radius_km) and radius_km > 0):
+        raise InputError("radius_km must be a positive number",
+                         [problem(f"must be > 0, got {radius_km!r}", field="radius_km")])
+    spacing_km = 0.5 * radius_km if spacing_km is None else float(spacing_km)
     glon, glat = grid_axes(bbox, spacing_km, max_nodes)
     lon2, lat2 = np.meshgrid(glon, glat)
     out = smooth_at(lon2.ravel(), lat2.ravel(), indicators["lon"], indicators["lat"],

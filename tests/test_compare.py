@@ -122,3 +122,19 @@ def test_outside_points_and_regime_disagreement(demo_model):
     assert summary["overall"]["regime_compared"] == 4
     assert_allclose(summary["overall"]["regime_agreement_fraction"], 0.75)
     assert table["province"].iloc[0] == ""
+
+
+def test_demo_anomalies_stand_out(demo_model):
+    """The fictional demo set's deliberate local anomalies misfit far more than the rest."""
+    from importlib import resources
+    from pathlib import Path
+
+    from stressmap.indicators import read_indicators
+
+    demo = read_indicators(Path(str(resources.files("stressmap.data").joinpath("demo_indicators.csv"))))
+    table, summary = compare.compare(demo_model, demo)
+    anomalous = table["note"].fillna("").str.contains("anomaly").to_numpy()
+    cluster = table["note"].fillna("").str.contains("local source").to_numpy()
+    assert np.nanmean(table["abs_misfit_deg"][cluster]) > 55.0
+    assert np.nanmean(table["abs_misfit_deg"][~anomalous]) < 25.0
+    assert summary["overall"]["random_p_value"] < 1e-20
