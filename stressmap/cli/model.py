@@ -177,7 +177,7 @@ def register(sub) -> None:
     q.add_argument("model_dir", metavar="DIR", help="model directory written by `stressmap build`")
     where = q.add_mutually_exclusive_group(required=True)
     where.add_argument("--points", metavar="FILE", help="CSV with lon,lat columns, or GeoJSON/GeoPackage points")
-    where.add_argument("--bbox", metavar="W,S,E,N", help="grid bounding box in degrees")
+    where.add_argument("--bbox", metavar="W,S,E,N", help="grid bounding box in degrees (write --bbox=W,S,E,N when W is negative)")
     q.add_argument("--spacing-km", type=float, metavar="K", help="grid spacing in km (with --bbox)")
     q.add_argument("--weights", metavar="GROUP=VALUE,...", help="scale load groups (default 1 each)")
     q.add_argument("-o", "--output", required=True, metavar="OUT",
