@@ -808,27 +808,35 @@ def parse_plate(document) -> PlateModel:
         if order is not None:
             ring, arc_segment, bounds = _build_ring(order, seg_coords)
             ring_xyz = sphere.lonlat_to_xyz(ring[:, 0], ring[:, 1])
-            area = sphere.spherical_polygon_area(ring_xyz)
-            if area < 0:
-                order = [(s, not f) for s, f in reversed(order)]
-                ring, arc_segment, bounds = _build_ring(order, seg_coords)
-                ring_xyz = sphere.lonlat_to_xyz(ring[:, 0], ring[:, 1])
-            area_km2 = abs(area)
-            centre = sphere.polygon_centroid_xyz(ring_xyz)
-            extent = np.degrees(np.max(sphere.angle_between(ring_xyz, centre)))
-            if len(ring) < 3 or area_km2 < 1.0:
-                probs.add(f"the boundary ring encloses no area ({area_km2:.3g} km^2)", "boundary")
-                ring = None
-            elif extent > MAX_EXTENT_DEG:
-                probs.add(f"the plate is larger than supported: its ring reaches {extent:.1f} "
-                          f"degrees of arc from the plate centre; the limit is {MAX_EXTENT_DEG:g} "
-                          "degrees (the plate must fit in a cap of that radius, well inside a "
-                          "hemisphere); split the plate", "boundary")
-                ring = None
-            else:
+            # crossings first, about the vertex mean (area and centroid mean nothing for a
+            # ring that crosses itself)
+            mean = sphere.normalize(ring_xyz.sum(axis=0))
+            spread = (np.degrees(np.max(sphere.angle_between(ring_xyz, mean)))
+                      if np.any(mean) else 180.0)
+            if spread < 89.0:
                 n0 = len(probs)
-                _self_intersections(ring_xyz, arc_segment, centre, probs)
+                _self_intersections(ring_xyz, arc_segment, mean, probs)
                 if len(probs) > n0:
+                    ring = None
+            if ring is not None:
+                area = sphere.spherical_polygon_area(ring_xyz)
+                if area < 0:
+                    order = [(s, not f) for s, f in reversed(order)]
+                    ring, arc_segment, bounds = _build_ring(order, seg_coords)
+                    ring_xyz = sphere.lonlat_to_xyz(ring[:, 0], ring[:, 1])
+                area_km2 = abs(area)
+                centre = sphere.polygon_centroid_xyz(ring_xyz)
+                extent = np.degrees(np.max(sphere.angle_between(ring_xyz, centre)))
+                if len(ring) < 3 or area_km2 < 1.0:
+                    probs.add(f"the boundary ring encloses no area ({area_km2:.3g} km^2)",
+                              "boundary")
+                    ring = None
+                elif extent > MAX_EXTENT_DEG or spread >= 89.0:
+                    extent = max(extent, spread)
+                    probs.add(f"the plate is larger than supported: its ring reaches {extent:.1f} "
+                              f"degrees of arc from the plate centre; the limit is "
+                              f"{MAX_EXTENT_DEG:g} degrees (the plate must fit in a cap of that "
+                              "radius, well inside a hemisphere); split the plate", "boundary")
                     ring = None
             if ring is not None:
                 est_nodes = _estimate_nodes(area_km2, mesh)
