@@ -40,7 +40,7 @@ def json_body(request) -> object:
         raise ApiProblem(400, "Malformed JSON", "the request body is empty; send a JSON document",
                          [problem("empty body", field="(body)")])
     try:
-        return json.loads(raw)
+        return json.loads(raw, parse_constant=_refuse_constant)
     except UnicodeDecodeError:
         raise ApiProblem(400, "Malformed JSON", "the request body is not UTF-8 text",
                          [problem("not UTF-8", field="(body)")]) from None
@@ -50,6 +50,17 @@ def json_body(request) -> object:
                          f"column {exc.colno}",
                          [problem(exc.msg, field="(body)", line=exc.lineno, column=exc.colno)]
                          ) from None
+    except RecursionError:  # json.loads recurses per nesting level
+        raise ApiProblem(400, "Malformed JSON", "the request body is nested too deeply to read",
+                         [problem("too many nested arrays/objects", field="(body)")]) from None
+    except ValueError as exc:  # NaN/Infinity (RFC 8259 has none), integers over 4300 digits
+        raise ApiProblem(400, "Malformed JSON", f"the request body is not valid JSON: {exc}",
+                         [problem(str(exc), field="(body)")]) from None
+
+
+def _refuse_constant(name: str):
+    raise ValueError(f"{name} is not a JSON number (RFC 8259 section 6); send null or a "
+                     "finite number")
 
 
 def _is_number(v) -> bool:
