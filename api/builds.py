@@ -52,6 +52,14 @@ def check_document(document, max_mesh_nodes: int) -> dict:
     """
     from stressmap.plate import parse_plate
 
+    ridge_push = document.get("ridge_push") if isinstance(document, dict) else None
+    if isinstance(ridge_push, dict) and ("age_grid" in ridge_push
+                                         or ridge_push.get("age_source") == "grid"):
+        # A path in an upload would make the service open any file (or URL) it can reach.
+        raise InputError("ridge_push.age_grid names a file on the server; uploads cannot",
+                         [problem("the service reads no server files named in a document; give "
+                                  "ages with age_source 'provinces' or 'ridge_distance'",
+                                  field="ridge_push.age_grid")])
     plate = parse_plate(document)  # its ModelValidationError lists every problem
     edge_km = float(plate.mesh.get("edge_km") or 50.0)
     estimate = estimated_mesh_nodes(plate.area_km2, edge_km)
