@@ -625,10 +625,10 @@ def calibrate(model, indicators, *, bounds=None, reference=None, n_starts=8, n_b
         As returned by :func:`stressmap.indicators.read_indicators` (point geometry,
         ``shmax_azimuth_deg``, ``sigma_deg``, ``weight``).
     bounds : dict, optional
-        ``group -> [low, high]``; overrides ``definition["calibration"]["bounds"]`` of the model,
-        which overrides :data:`DEFAULT_BOUNDS`.
+        ``group -> [low, high]``; groups not named get :data:`DEFAULT_BOUNDS`. (The CLI and the
+        service merge bounds from their configuration under the request's.)
     reference : str, optional
-        Defaults to ``definition["calibration"]["reference"]`` when the model document gives one.
+        Group held at its default weight (see :func:`calibrate_arrays`).
 
     Other parameters are those of :func:`calibrate_arrays`. Indicators outside the plate are left
     out (their number is in ``settings["n_outside"]``).
@@ -636,10 +636,6 @@ def calibrate(model, indicators, *, bounds=None, reference=None, n_starts=8, n_b
     from stressmap.model import resolve_weights, unit_stress_at
 
     lon, lat, az, kappa = _indicator_columns(indicators)
-    config = dict((getattr(model, "definition", None) or {}).get("calibration") or {})
-    merged = dict(config.get("bounds") or {})
-    merged.update(bounds or {})
-    reference = reference if reference is not None else config.get("reference")
     inside, unit = unit_stress_at(model, lon, lat)
     inside = np.asarray(inside, dtype=bool)
     usable = inside & np.isfinite(az) & (kappa > 0)
@@ -651,7 +647,7 @@ def calibrate(model, indicators, *, bounds=None, reference=None, n_starts=8, n_b
     w0 = resolve_weights(model, None)
     result = calibrate_arrays(
         np.asarray(unit)[:, usable], az[usable], kappa[usable], groups=groups, default_weights=w0,
-        bounds=resolve_bounds(groups, merged), reference=reference, n_starts=n_starts,
+        bounds=resolve_bounds(groups, bounds), reference=reference, n_starts=n_starts,
         n_bootstrap=n_bootstrap, n_random=n_random, confidence=confidence, seed=seed,
         progress=progress,
     )

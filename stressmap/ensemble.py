@@ -50,6 +50,9 @@ __all__ = [
     "ensemble_points",
     "ensemble_grid",
     "STAT_VARIABLES",
+    "percentile_label",
+    "flatten_percentiles",
+    "ensemble_png",
 ]
 
 _log = logging.getLogger(__name__)
@@ -609,18 +612,11 @@ def _group_references(model) -> dict:
     return {g: {k: float(np.mean(v)) for k, v in d.items()} for g, d in values.items()}
 
 
-def _ensemble_config(model, distributions):
-    config = dict((getattr(model, "definition", None) or {}).get("ensemble") or {})
-    merged = dict(config.get("distributions") or {})
-    merged.update(distributions or {})
-    return merged
-
-
 def _weights_for(model, members, distributions, seed):
     from stressmap.model import resolve_weights
 
     groups = list(model.groups)
-    merged = _ensemble_config(model, distributions)
+    merged = dict(distributions or {})
     needs_refs = any(isinstance(s, dict) and s.get("parameter", "weight") not in ("weight", "scale")
                      for s in merged.values())
     refs = _group_references(model) if needs_refs else {}
@@ -651,8 +647,9 @@ def ensemble_points(model, lon, lat, members=1000, distributions=None, seed=0,
     lon, lat : array_like (P,)
     members : int
     distributions : dict, optional
-        ``group -> spec`` (see :func:`validate_distributions`); merged over the model document's
-        ``ensemble.distributions``.
+        ``group -> spec`` (see :func:`validate_distributions`); groups not named keep weight 1.
+        A spec for ``pull_fraction`` or ``slab_age_myr`` takes its reference value from the
+        group's segments in the model document (their mean) unless it gives ``reference``.
     weights : ndarray (M, G), optional
         Use these member weights instead of drawing them.
     **kwargs
@@ -695,7 +692,7 @@ def ensemble_points(model, lon, lat, members=1000, distributions=None, seed=0,
     data["member_weight"] = (("member", "group"), weights)
     ds = xr.Dataset(data, coords={"percentile": stats["percentiles"],
                                   "group": list(model.groups)},
-                    attrs=_attrs(weights.shape[0], seed, _ensemble_config(model, distributions)))
+                    attrs=_attrs(weights.shape[0], seed, distributions or {}))
     return ds
 
 
@@ -730,3 +727,51 @@ def ensemble_grid(model, bbox, spacing_km, members=1000, distributions=None, see
     grid["inside"] = grid["inside"].astype(np.int8)
     grid["inside"].attrs = {"flag_values": [0, 1], "flag_meanings": "outside inside"}
     return grid
+
+
+def percentile_label(q) -> str:
+    """Suffix of a percentile column: ``p5``, ``p50``, ``p2_5``.
+
+    Examples
+    --------
+    >>> [percentile_label(q) for q in (5.0, 50, 2.5)]
+    ['p5', 'p50', 'p2_5']
+    """
+    return "p" + f"{float(q):g}".replace(".", "_")
+
+
+def flatten_percentiles(ds):
+    """A copy of an ensemble Dataset with one variable per percentile and no member weights.
+
+    ``s_hmax_mpa`` over (..., percentile) becomes ``s_hmax_mpa_p5``, ``s_hmax_mpa_p50``, ... so
+    that tabular writers (GeoJSON properties, CSV columns) see one value per point.
+    """
+    out = ds.drop_vars([v for v in ("member_weight",) if v in ds.variables])
+    for name in [n for n, v in out.data_vars.items() if "percentile" in v.dims]:
+        var = out[name]
+        for q in out["percentile"].values:
+            out[f"{name}_{percentile_label(q)}"] = var.sel(percentile=q).drop_vars("percentile")
+        out = out.drop_vars(name)
+    drop = [c for c in ("percentile", "group", "member") if c in out.coords or c in out.dims]
+    return out.drop_vars([c for c in drop if c in out.variables])
+
+
+def ensemble_png(ds, outline=None, title=None, caption=None) -> bytes:
+    """PNG map of an ensemble: mean SHmax ticks coloured by the mean A-phi, with the axial
+    standard deviation drawn as a fan around each tick (:func:`stressmap.maps.shmax_map`)."""
+    from stressmap.maps import shmax_map
+
+    if "point" in ds.dims:
+        lon = np.asarray(ds["lon"].values, float)
+        lat = np.asarray(ds["lat"].values, float)
+        get = lambda name: np.asarray(ds[name].values, float).ravel()  # noqa: E731
+    else:
+        lon2, lat2 = np.meshgrid(np.asarray(ds["lon"].values, float),
+                                 np.asarray(ds["lat"].values, float))
+        lon, lat = lon2.ravel(), lat2.ravel()
+        get = lambda name: np.asarray(ds[name].transpose("lat", "lon").values, float).ravel()  # noqa: E731
+    members = ds.attrs.get("members", "")
+    return shmax_map(lon, lat, get("shmax_azimuth_deg"), get("regime_index"), outline,
+                     uncertainty_deg=get("shmax_std_deg"),
+                     title=title or f"Ensemble mean SHmax and 1-sigma spread ({members} members)",
+                     caption=caption)
