@@ -43,6 +43,22 @@ def mesh_nodes(model) -> int:
     return 0
 
 
+#: Most boundary vertices accepted in an uploaded document (checked before it is parsed).
+MAX_BOUNDARY_VERTICES = 20_000
+
+
+def _boundary_vertex_count(document) -> int:
+    """Positions in the boundary's LineStrings (0 where the structure is not as expected)."""
+    boundary = document.get("boundary") if isinstance(document, dict) else None
+    feats = boundary.get("features") if isinstance(boundary, dict) else None
+    total = 0
+    for feat in feats if isinstance(feats, list) else []:
+        geom = feat.get("geometry") if isinstance(feat, dict) else None
+        coords = geom.get("coordinates") if isinstance(geom, dict) else None
+        total += len(coords) if isinstance(coords, list) else 0
+    return total
+
+
 def check_document(document, max_mesh_nodes: int) -> dict:
     """Validate a plate model document before accepting its build.
 
@@ -60,6 +76,14 @@ def check_document(document, max_mesh_nodes: int) -> dict:
                          [problem("the service reads no server files named in a document; give "
                                   "ages with age_source 'provinces' or 'ridge_distance'",
                                   field="ridge_push.age_grid")])
+    vertices = _boundary_vertex_count(document)
+    if vertices > MAX_BOUNDARY_VERTICES:
+        # Checked before parsing: validation and meshing grow with the vertex count (a mesh has
+        # about 4-5 nodes per boundary vertex), so a huge outline must not reach either.
+        raise InputError("the model's boundary has too many vertices",
+                         [problem(f"{vertices:,} boundary vertices; this service takes at most "
+                                  f"{MAX_BOUNDARY_VERTICES:,} (simplify the outline)",
+                                  field="boundary.features")])
     plate = parse_plate(document)  # its ModelValidationError lists every problem
     edge_km = float(plate.mesh.get("edge_km") or 50.0)
     estimate = estimated_mesh_nodes(plate.area_km2, edge_km)
