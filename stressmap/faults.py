@@ -108,10 +108,11 @@ def resolve_traction(stress_ned, normal):
     (2.0, 1.0)
     """
     stress_ned, normal = _f(stress_ned), _f(normal)
-    t = np.einsum("...ij,...j->...i", stress_ned, normal)
-    sn = np.einsum("...i,...i->...", t, normal)
+    t = np.matmul(stress_ned, normal[..., None])[..., 0]
+    sn = (t * normal).sum(axis=-1)
     shear_vec = t - sn[..., None] * normal
-    tau = np.linalg.norm(shear_vec, axis=-1)
+    # |shear|^2 = |t|^2 - sn^2, clipped against round-off; sqrt of the sum is cheaper than norm
+    tau = np.sqrt(np.maximum((shear_vec * shear_vec).sum(axis=-1), 0.0))
     return sn, tau, shear_vec
 
 
@@ -226,8 +227,8 @@ def fault_tendencies(stress_ned, pp_mpa, strike_deg, dip_deg, friction=0.6, cohe
     # The hanging wall slides along the shear traction it exerts on the footwall, which is
     # -(shear part of S n) for compression-positive S and n pointing into the hanging wall.
     slip = -shear_vec
-    along = np.einsum("...i,...i->...", slip, strike_vec)
-    down = np.einsum("...i,...i->...", slip, dip_vec)
+    along = (slip * strike_vec).sum(axis=-1)
+    down = (slip * dip_vec).sum(axis=-1)
     rake = np.degrees(np.arctan2(-down, along))
     rake = np.where(tau > 1e-12 * np.maximum(np.abs(sn), 1.0), rake, np.nan)
     sn, tau, s1, s3, pp = np.broadcast_arrays(sn, tau, s1, s3, pp)

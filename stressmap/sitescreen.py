@@ -535,14 +535,29 @@ def _collect_planes(req: ScreenRequest, notes: list) -> dict:
         dd_in = np.asarray(tr["dip_direction_deg"], dtype=float)[seg_part]
         s, misfit = fl.strike_from_azimuth(az, dd_in)
         dips = np.asarray(tr["dip_deg"], dtype=float)[seg_part]
-        bad = (misfit > DEFAULTS["max_dip_direction_misfit_deg"]) & (dips < 90.0)
+        # A trace whose overall direction (first to last vertex) runs within 30 degrees of its
+        # dip direction is a data error; single segments of a wiggly trace may do so and are
+        # only counted in the notes (each still dips toward the side nearest the dip direction).
+        limit = DEFAULTS["max_dip_direction_misfit_deg"]
+        ends = np.cumsum([len(a) for a in lines])
+        first_xy, last_xy = coords[ends - np.array([len(a) for a in lines])], coords[ends - 1]
+        closed = np.all(first_xy == last_xy, axis=1)
+        chord = fl.segment_azimuth_deg(first_xy[:, 0], first_xy[:, 1], last_xy[:, 0],
+                                       last_xy[:, 1])
+        tr_dd = np.asarray(tr["dip_direction_deg"], dtype=float)
+        _, tr_misfit = fl.strike_from_azimuth(chord, tr_dd)
+        bad = (tr_misfit > limit) & ~closed & (np.asarray(tr["dip_deg"], dtype=float) < 90.0)
         if bad.any():
-            feat = np.asarray(tr["feature"])[seg_part]
-            probs = [problem(f"the dip direction {dd_in[i]:.0f} runs within "
-                             f"{90 - misfit[i]:.0f} degrees of the trace (segment azimuth "
-                             f"{az[i]:.0f}); check dip_direction_deg", field="dip_direction_deg",
-                             row=int(feat[i]) + 1) for i in np.flatnonzero(bad)[:20]]
+            probs = [problem(f"the dip direction {tr_dd[i]:.0f} runs within "
+                             f"{90 - tr_misfit[i]:.0f} degrees of the trace's own direction "
+                             f"({chord[i]:.0f}); check dip_direction_deg",
+                             field="dip_direction_deg", row=int(tr["feature"][i]) + 1)
+                     for i in np.flatnonzero(bad)[:20]]
             raise InputError("a fault's dip direction does not fit its trace", probs)
+        odd = int(np.count_nonzero((misfit > limit) & (dips < 90.0)))
+        if odd:
+            notes.append(f"{odd} trace segment(s) run within {90 - limit:.0f} degrees of their "
+                         "fault's dip direction; each dips toward the nearer side")
         if np.isnan(dd_in).any():
             notes.append("traces without dip_direction_deg dip to the right of their digitised "
                          "direction (right-hand rule)")

@@ -83,3 +83,19 @@ def test_traces_without_dip_direction_dip_right_of_digitising():
     assert_allclose(seg["strike_deg"], 180.0, atol=1e-6)   # digitised southward
     assert_allclose(seg["dip_direction_deg"], 270.0, atol=1e-6)
     assert any("right of their digitised direction" in n for n in doc["notes"])
+
+
+def test_wiggly_trace_segments_are_noted_not_rejected():
+    # overall trend north, dipping east; one short segment runs east-north-east
+    faults = {"type": "FeatureCollection", "features": [
+        {"type": "Feature", "properties": {"dip_deg": 60, "dip_direction_deg": 90},
+         "geometry": {"type": "LineString",
+                      "coordinates": [[-15.0, -20.0], [-15.0, -19.95], [-14.99, -19.947],
+                                      [-14.99, -19.9]]}}]}
+    doc = run(regime="normal", faults=faults)
+    strikes = sorted(p["strike_deg"] for p in doc["planes"])
+    assert_allclose(strikes[:2], 0.0, atol=1e-6)
+    # the ENE segment (azimuth ~73) dips to the SSE side, nearer the stated east
+    odd = [p for p in doc["planes"] if 10 < p["strike_deg"] < 350]
+    assert len(odd) == 1 and 60 < odd[0]["strike_deg"] < 90
+    assert any("1 trace segment(s)" in n for n in doc["notes"])
