@@ -273,11 +273,14 @@ def shmax_from_axes(s1, s2, shape_ratio=0.5, tol=1e-9):
     return np.where(amp > tol, az, np.nan)
 
 
-def shmax_span_deg(s1, s2, n=91):
+def shmax_span_deg(s1, s2):
     """Largest axial change of SHmax when the shape ratio runs over [0, 1] (degrees, in [0, 90]).
 
     Lund & Townend (2007) recommend reporting this range for focal mechanisms whose shape ratio is
-    unknown. Shape ratios at which SHmax is undefined are skipped; NaN where it is undefined at
+    unknown. The doubled-angle vector whose direction gives SHmax is linear in the shape ratio,
+    ``v(phi) = a + phi b``, so its direction turns monotonically along the segment and the extremes
+    are at phi = 0 and phi = 1 (a segment through the origin flips SHmax by 90 degrees, which the
+    end points show). Ends at which SHmax is undefined are skipped; NaN where it is undefined at
     phi = 0.5.
 
     Examples
@@ -290,14 +293,10 @@ def shmax_span_deg(s1, s2, n=91):
     >>> round(float(shmax_span_deg([0.9, 0, np.sqrt(0.19)], [0, 1, 0])), 6)   # flips by 90
     90.0
     """
-    s1 = _f(s1)[..., None, :]
-    s2 = _f(s2)[..., None, :]
-    phis = np.linspace(0.0, 1.0, n)
-    az = shmax_from_axes(s1, s2, phis)
-    ref = az[..., n // 2 : n // 2 + 1]
-    diff = np.abs(np.mod(az - ref + 90.0, 180.0) - 90.0)
-    diff = np.where(np.isnan(az), -1.0, diff)
-    return np.where(np.isnan(ref[..., 0]), np.nan, np.max(diff, axis=-1))
+    ref = shmax_from_axes(s1, s2, 0.5)
+    ends = [shmax_from_axes(s1, s2, phi) for phi in (0.0, 1.0)]
+    diffs = [np.where(np.isnan(e), 0.0, np.abs(np.mod(e - ref + 90.0, 180.0) - 90.0)) for e in ends]
+    return np.where(np.isnan(ref), np.nan, np.maximum(*diffs))
 
 
 def frohlich_class(p_plunge_deg, t_plunge_deg, b_plunge_deg):

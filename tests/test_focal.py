@@ -288,3 +288,17 @@ def test_describe_is_vectorised_and_handles_nan():
     out = focal.describe_mechanisms([0.0, np.nan], [90.0, 45.0], [0.0, 90.0])
     assert out["mechanism_class"].tolist() == ["strike-slip", ""]
     assert np.isnan(out["shmax_azimuth_deg"][1])
+
+
+def test_shmax_span_equals_dense_sampling_of_the_shape_ratio():
+    """The end-point formula for the span against brute force over 201 shape ratios."""
+    rots = Rotation.random(300, random_state=np.random.default_rng(8)).as_matrix()
+    s1, s2 = rots[:, :, 0], rots[:, :, 1]
+    span = focal.shmax_span_deg(s1, s2)
+    phis = np.linspace(0.0, 1.0, 201)
+    az = focal.shmax_from_axes(s1[:, None, :], s2[:, None, :], phis)
+    ref = focal.shmax_from_axes(s1, s2, 0.5)[:, None]
+    dense = np.where(np.isnan(az), -1.0, np.abs(np.mod(az - ref + 90.0, 180.0) - 90.0)).max(axis=1)
+    ok = np.isfinite(span)
+    assert ok.sum() > 290
+    assert_allclose(span[ok], dense[ok], atol=1e-9)
