@@ -96,7 +96,7 @@ def read_boundary_file(path) -> tuple[list, list]:
     if suffix in (".geojson", ".json"):
         try:
             data = json.loads(p.read_text(encoding="utf-8"))
-        except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        except (UnicodeDecodeError, ValueError, RecursionError) as exc:  # also too deep/long
             _fail(f"{p.name} is not valid GeoJSON: {exc}", p.name)
         if isinstance(data, dict) and data.get("type") == "Feature":
             data = {"type": "FeatureCollection", "features": [data]}
@@ -164,7 +164,7 @@ def read_params_file(path) -> dict:
         else:
             _fail(f"unsupported parameter file type {suffix!r}: use TOML (.toml) or JSON (.json)",
                   p.name)
-    except (UnicodeDecodeError, json.JSONDecodeError, tomllib.TOMLDecodeError) as exc:
+    except (UnicodeDecodeError, ValueError, RecursionError, tomllib.TOMLDecodeError) as exc:
         _fail(f"{p.name} cannot be parsed: {exc}", p.name)
     if not isinstance(data, dict):
         _fail(f"{p.name} must hold an object (table) of document fields", p.name)
