@@ -122,7 +122,7 @@ def read_table(path):
     if suffix in (".geojson", ".json"):
         try:
             doc = json.loads(path.read_text(encoding="utf-8-sig"))
-        except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        except (UnicodeDecodeError, ValueError, RecursionError) as exc:  # also too deep/long
             raise IndicatorFileError(f"{path.name} is not valid JSON: {exc}",
                                      [problem(f"invalid JSON: {exc}")]) from exc
         return table_from_geojson(doc, field=path.name)
