@@ -223,7 +223,7 @@ def read_fault_file(path) -> tuple[FaultInput, dict]:
     if path.suffix.lower() in (".geojson", ".json"):
         try:
             collection = json.loads(path.read_text(encoding="utf-8"))
-        except (OSError, ValueError) as exc:
+        except (OSError, ValueError, RecursionError) as exc:  # RecursionError: nested too deeply
             raise InputError(f"cannot read fault file {path}: {exc}",
                              [problem(str(exc), field="--faults")]) from exc
     else:
