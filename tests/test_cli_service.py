@@ -9,7 +9,6 @@ from __future__ import annotations
 import json
 
 import numpy as np
-import pytest
 
 from stressmap import CAUTION
 from stressmap.cli import main

@@ -12,7 +12,7 @@ from stressmap_api.builds import build_and_store, check_document
 from stressmap_api.jobs import get_jobs
 from stressmap_api.limits import run_limited
 from stressmap_api.render import output_meta, render
-from stressmap_api.store import check_id, get_store, new_id
+from stressmap_api.store import get_store, new_id
 
 __all__ = ["bp", "predict_region", "segment_forces"]
 
@@ -117,7 +117,7 @@ def _mask_grid(ds, keep_lat_lon: np.ndarray):
             continue
         if var.dtype == bool:
             out[name] = var & keep
-        elif var.dtype.kind in "US O":
+        elif var.dtype.kind in ("U", "S", "O"):
             out[name] = var.where(keep, "")
         else:
             out[name] = var.where(keep)
@@ -133,9 +133,9 @@ def _predict_points(model, lon, lat, weights):
 
 @bp.post("/models/<model_id>/predict")
 def predict(model_id: str):
-    body = queries.json_body(request)
     store = get_store()
-    check_id(model_id)
+    meta = store.meta(model_id)  # 404 for an unknown or malformed id, before reading the body
+    body = queries.json_body(request)
     if not isinstance(body, dict):
         raise InputError("the request body must be a JSON object",
                          [problem(f"expected an object with points or region, got "
@@ -161,8 +161,7 @@ def predict(model_id: str):
         bbox, spacing, polygon = queries.parse_region(body["region"], body.get("spacing_km"),
                                                       int(cfg.get("MAX_GRID_POINTS") or 0))
         props, grid = None, True
-    model = store.load(model_id)
-    meta = store.meta(model_id)
+    model = store.load(model_id)  # 409 unless ready
     if grid:
         ds = run_limited(predict_region, model, bbox, spacing, polygon, weights)
     else:
@@ -175,7 +174,7 @@ def predict(model_id: str):
 @bp.get("/models/<model_id>/field")
 def get_field(model_id: str):
     store = get_store()
-    check_id(model_id)
+    meta = store.meta(model_id)
     cfg = current_app.config
     bbox = queries.parse_bbox_text(request.args.get("bbox"))
     spacing = queries.parse_spacing_text(request.args.get("spacing_km"))
@@ -183,7 +182,6 @@ def get_field(model_id: str):
     fmt = queries.parse_format(request.args.get("format"))
     weights = queries.parse_weights_text(request.args.get("weights"))
     model = store.load(model_id)
-    meta = store.meta(model_id)
     ds = run_limited(predict_region, model, bbox, spacing, None, weights)
     return run_limited(render, ds, fmt, output_meta(meta, weights), grid=True, model=model,
                        stem=f"stressmap-{model_id[:8]}-field")

@@ -8,11 +8,12 @@ import json
 import logging
 import math
 import os
+import signal
 import sys
 import tomllib
 from pathlib import Path
 
-from stressmap.errors import InputError, problem
+from stressmap.errors import InputError, StressmapError, problem
 
 __all__ = ["register", "load_server_config", "SERVER_DEFAULTS"]
 
@@ -89,7 +90,16 @@ def _cmd_serve(args) -> int:
             demo_id = ensure_demo(store, update, int(app.config.get("MAX_MESH_NODES") or 0))
         finally:
             bar.close()
-    server = create_server(app, **server_cfg)
+    try:
+        server = create_server(app, **server_cfg)
+    except OSError as exc:
+        jobs.shutdown()
+        raise StressmapError(f"cannot listen on {server_cfg['host']}:{server_cfg['port']}: "
+                             f"{exc.strerror or exc} (choose another --port)") from None
+    except (TypeError, ValueError) as exc:  # unknown or malformed waitress setting
+        jobs.shutdown()
+        raise InputError(f"bad server setting: {exc}",
+                         [problem(str(exc), field="config/server.toml")]) from None
     host = server_cfg["host"]
     base = f"http://{'[' + host + ']' if ':' in host else host}:{server.effective_port}"
     print(f"stressmap service listening on {base}  (API page: {base}/api/v1/docs)", flush=True)
@@ -104,6 +114,11 @@ def _cmd_serve(args) -> int:
         for line in example_requests(base, demo_id, points, token_header=token_reads):
             print(f"  {line}")
     print("press Ctrl-C to stop", flush=True)
+
+    def _terminate(signum, frame):  # SIGTERM (service managers): stop like Ctrl-C
+        raise KeyboardInterrupt
+
+    signal.signal(signal.SIGTERM, _terminate)
     try:
         server.run()
     except KeyboardInterrupt:
