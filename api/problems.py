@@ -3,13 +3,15 @@
 from __future__ import annotations
 
 import logging
+import re
+from pathlib import Path
 
 from flask import Flask, Response, json, request
 from werkzeug.exceptions import HTTPException
 
 from stressmap.errors import InputError, NotFoundError, StorageError
 
-__all__ = ["problem_response", "register_error_handlers", "ApiProblem"]
+__all__ = ["problem_response", "register_error_handlers", "ApiProblem", "scrub_paths"]
 
 PROBLEM_MIME = "application/problem+json"
 _log = logging.getLogger(__name__)
@@ -40,6 +42,29 @@ def problem_response(status: int, title: str, detail: str, errors: list[dict] | 
     return resp
 
 
+_ABS_PATH = re.compile(r"(?<![\w.:/])/(?:[^\s'\"/:]+/)*[^\s'\":,;]+")
+
+
+def scrub_paths(text: str) -> str:
+    """``text`` with the data directory and other absolute file paths replaced by placeholders,
+    so that messages about storage say what failed without showing the server's layout.
+
+    Examples
+    --------
+    >>> scrub_paths("cannot open /srv/x/index.sqlite3: disk I/O error")
+    'cannot open <path>/index.sqlite3: disk I/O error'
+    """
+    try:
+        from flask import current_app
+
+        data_dir = str(Path(current_app.config["DATA_DIR"]).resolve())
+        text = text.replace(data_dir, "<data directory>")
+    except (RuntimeError, KeyError):  # outside an app context
+        pass
+    return _ABS_PATH.sub(lambda m: "<path>/" + m.group(0).rsplit("/", 1)[-1]
+                         if "/" in m.group(0)[1:] else "<path>", text)
+
+
 def register_error_handlers(app: Flask) -> None:
     @app.errorhandler(ApiProblem)
     def _api_problem(exc: ApiProblem):
@@ -67,7 +92,7 @@ def register_error_handlers(app: Flask) -> None:
     @app.errorhandler(StorageError)
     def _storage(exc: StorageError):
         _log.error("storage error: %s", exc)
-        return problem_response(503, "Storage unavailable", str(exc))
+        return problem_response(503, "Storage unavailable", scrub_paths(str(exc)))
 
     @app.errorhandler(HTTPException)
     def _http(exc: HTTPException):
