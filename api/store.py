@@ -376,7 +376,11 @@ class Store:
             (utc_now(), json.dumps(result, default=_json_default), job_id))
 
     def job_failed(self, job_id: str, reason: str, errors: list[dict] | None = None) -> None:
-        error = {"reason": str(reason)}
+        from stressmap_api.problems import scrub_paths
+
+        # Reasons are shown to clients (GET /jobs, /models): no server paths in them.
+        reason = scrub_paths(str(reason).replace(str(self.data_dir), "<data directory>"))
+        error = {"reason": reason}
         if errors:
             error["errors"] = errors
         self._execute(
