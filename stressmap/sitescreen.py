@@ -44,6 +44,7 @@ __all__ = [
     "screen",
     "orientation_from_model",
     "ensemble_orientation",
+    "indicator_spread_deg",
     "result_json",
     "result_geojson",
     "result_csv",
@@ -87,7 +88,7 @@ _KNOWN_KEYS = {
 _UNCERTAINTY_KEYS = {
     "samples", "seed", "friction_range", "pore_pressure_range_mpa", "pore_gradient_range_mpa_km",
     "density_range_kg_m3", "azimuth_sigma_deg", "shape_ratio_range", "margin_threshold_mpa",
-    "ensemble_members", "ensemble_distributions",
+    "ensemble_members", "ensemble_distributions", "indicators", "indicator_radius_km",
 }
 
 
@@ -132,6 +133,8 @@ class ScreenRequest:
     margin_threshold_mpa: float = 0.0
     ensemble_members: int = 0
     ensemble_distributions: dict | None = None
+    indicators: object | None = None     # geopandas.GeoDataFrame from stressmap.indicators
+    indicator_radius_km: float = 500.0
 
 
 def parse_site_text(text: str, field_name: str = "--site") -> tuple[float, float]:
@@ -400,9 +403,22 @@ def parse_request(doc: dict) -> ScreenRequest:
         problems.append(problem("must be an object {group: distribution}",
                                 field="uncertainty.ensemble_distributions"))
         dists = None
+    indicators = unc.get("indicators")
+    if indicators is not None and isinstance(indicators, dict):
+        from stressmap.indicators import indicators_from_geojson
+
+        try:
+            indicators = indicators_from_geojson(indicators, field="uncertainty.indicators")
+        except InputError as exc:
+            problems.extend(exc.problems)
+            indicators = None
+    elif indicators is not None and not hasattr(indicators, "geometry"):
+        problems.append(problem("must be a GeoJSON FeatureCollection of stress indicators",
+                                field="uncertainty.indicators"))
+        indicators = None
+    radius = _number(unc, "indicator_radius_km", problems, lo=0.0, lo_open=True, where=w)
     if samples is None:
-        wants = any(v is not None for v in (fr, ppr, pgr, dr, sig, phr, members)) and \
-            (members or 0) >= 0
+        wants = any(v is not None for v in (fr, ppr, pgr, dr, sig, phr, members, indicators))
         samples = 1000 if wants else 0
 
     if problems:
@@ -423,6 +439,7 @@ def parse_request(doc: dict) -> ScreenRequest:
         azimuth_sigma_deg=sig, shape_ratio_range=phr,
         margin_threshold_mpa=DEFAULTS["margin_threshold_mpa"] if thr is None else thr,
         ensemble_members=int(members or 0), ensemble_distributions=dists,
+        indicators=indicators, indicator_radius_km=500.0 if radius is None else radius,
     )
 
 
@@ -485,6 +502,62 @@ def ensemble_orientation(model, lon: float, lat: float, members: int, seed: int 
     d = describe(comps[:, 0], comps[:, 1], comps[:, 2])
     return {"shmax_azimuth_deg": d["shmax_azimuth_deg"], "regime_code": d["regime_code"],
             "shape_ratio": d["shape_ratio"]}
+
+
+def indicator_spread_deg(indicators, lon: float, lat: float, radius_km: float = 500.0,
+                         model=None, weights=None) -> tuple[float, str, dict]:
+    """Orientation spread (degrees) derived from stress indicators near a site.
+
+    With a model: the weighted RMS misfit between the indicators and the model's SHmax
+    (:func:`stressmap.compare.compare`), i.e. how far the model's azimuth is typically off. Without
+    one: the weighted axial standard deviation of the indicators' SHmax azimuths
+    (:func:`stressmap.circular.axial_std_deg`). Indicators within ``radius_km`` of the site
+    (great circles on the 6371 km sphere) are used; when fewer than 3 are that close, all of
+    them are, and the answer says so.
+
+    Returns
+    -------
+    sigma_deg, description, info
+    """
+    from pyproj import Geod
+
+    from stressmap.constants import EARTH_RADIUS_M
+
+    ilon = indicators["lon"].to_numpy(float)
+    ilat = indicators["lat"].to_numpy(float)
+    _, _, dist = Geod(a=EARTH_RADIUS_M, f=0.0).inv(np.full_like(ilon, lon), np.full_like(ilat, lat),
+                                                   ilon, ilat)
+    near = np.asarray(dist) / 1e3 <= radius_km
+    scope = f"{int(near.sum())} indicators within {radius_km:g} km"
+    if near.sum() < 3:
+        near = np.ones_like(near)
+        scope = f"all {int(near.sum())} indicators (fewer than 3 within {radius_km:g} km)"
+    chosen = indicators[near]
+    if model is not None:
+        from stressmap.compare import compare
+
+        table, _ = compare(model, chosen, weights)
+        ok = table["inside"].to_numpy(bool) & np.isfinite(table["misfit_deg"].to_numpy(float))
+        m = table["misfit_deg"].to_numpy(float)[ok]
+        w = table["weight"].to_numpy(float)[ok]
+        if m.size == 0:
+            raise InputError("no indicator near the site can be compared with the model",
+                             [problem("no usable indicator inside the plate",
+                                      field="uncertainty.indicators")])
+        sigma = float(np.sqrt(np.sum(w * m**2) / np.sum(w)))
+        how = f"indicator-derived: weighted RMS misfit of the model against {scope}"
+    else:
+        from stressmap.circular import axial_std_deg
+
+        az = chosen["shmax_azimuth_deg"].to_numpy(float)
+        w = chosen["weight"].to_numpy(float) if "weight" in chosen else None
+        sigma = float(axial_std_deg(az, w))
+        how = f"indicator-derived: axial standard deviation of {scope}"
+    if not np.isfinite(sigma):
+        raise InputError("the indicators near the site give no usable orientation spread",
+                         [problem("their azimuths cancel out", field="uncertainty.indicators")])
+    sigma = min(sigma, 90.0)
+    return sigma, how, {"sigma_deg": sigma, "source": how}
 
 
 # ---------------------------------------------------------------------------------------------
@@ -663,7 +736,8 @@ def screen(req: ScreenRequest, model=None, model_info: dict | None = None) -> Sc
         regime, sources["regime"] = None, "measured magnitudes"
     else:
         regime = None
-        missing.append(problem("give --regime (regime) or a model", field="regime"))
+        missing.append(problem("give --regime (regime) or a model" if orient is None else
+                               "the model gives no regime here; give regime", field="regime"))
     if missing:
         raise InputError("the site's stress orientation is not known" if len(missing) > 1 else
                          missing[0]["message"], missing)
@@ -805,10 +879,16 @@ def _sample(result: ScreenResult, model, profile, rho_mean, code, phi, az, orien
 
         info["ensemble_azimuth_std_deg"] = float(axial_std_deg(ens["shmax_azimuth_deg"]))
     else:
-        sigma = DEFAULTS["azimuth_sigma_deg"] if req.azimuth_sigma_deg is None else \
-            req.azimuth_sigma_deg
+        if req.azimuth_sigma_deg is not None:
+            sigma, how = req.azimuth_sigma_deg, "user-given"
+        elif req.indicators is not None:
+            sigma, how, ind_info = indicator_spread_deg(
+                req.indicators, req.lon, req.lat, req.indicator_radius_km,
+                model if req.shmax_azimuth_deg is None else None, req.weights)
+            info["indicator_spread"] = ind_info
+        else:
+            sigma, how = DEFAULTS["azimuth_sigma_deg"], "default"
         azs = np.mod(az + sigma * rng.standard_normal(n), 180.0)
-        how = "user-given" if req.azimuth_sigma_deg is not None else "default"
         info["orientation_source"] = (f"normal spread of the SHmax azimuth about "
                                       f"{az:.1f} deg, sigma {sigma:g} deg ({how}); regime fixed")
         if model is not None and req.shmax_azimuth_deg is None:

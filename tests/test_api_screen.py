@@ -134,3 +134,24 @@ def test_non_object_body_and_outside_site(client, model_id):
                                                "model_id": model_id})
     assert resp.status_code == 422
     assert resp.json["errors"][0]["field"] == "site"
+
+
+def test_indicator_derived_spread_against_the_model(client, model_id, coarse_demo_model):
+    from stressmap.model import predict_points
+
+    lon = -15.0 + np.array([-0.5, 0.5, 0.0, 0.3, -0.3, 0.6])
+    lat = -20.0 + np.array([0.0, 0.0, 0.5, -0.4, 0.4, 0.2])
+    pred = predict_points(coarse_demo_model, lon, lat)["shmax_azimuth_deg"].values
+    offsets = np.array([10.0, -10.0, 10.0, -10.0, 10.0, -10.0])
+    fc = {"type": "FeatureCollection", "features": [  # invented test indicators
+        {"type": "Feature", "properties": {"type": "breakout", "sigma_deg": 15.0,
+                                           "azimuth_deg": float((p + o + 90.0) % 180.0)},
+         "geometry": {"type": "Point", "coordinates": [float(x), float(y)]}}
+        for x, y, p, o in zip(lon, lat, pred, offsets)]}
+    body = {"site": [-15.0, -20.0], "depth_km": 3.0, "model_id": model_id, "planes": ["040/60"],
+            "uncertainty": {"indicators": fc, "samples": 100}}
+    resp = client.post("/api/v1/screen", json=body)
+    assert resp.status_code == 200, resp.json
+    info = resp.json["uncertainty"]["indicator_spread"]
+    assert_allclose(info["sigma_deg"], 10.0, atol=1e-6)  # RMS of +-10 deg misfits
+    assert "RMS misfit of the model" in info["source"]

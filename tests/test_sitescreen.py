@@ -99,3 +99,32 @@ def test_wiggly_trace_segments_are_noted_not_rejected():
     odd = [p for p in doc["planes"] if 10 < p["strike_deg"] < 350]
     assert len(odd) == 1 and 60 < odd[0]["strike_deg"] < 90
     assert any("1 trace segment(s)" in n for n in doc["notes"])
+
+
+def _indicator_fc(lon, lat, az):
+    """Invented breakout indicators (test fixtures, not real data)."""
+    return {"type": "FeatureCollection", "features": [
+        {"type": "Feature", "properties": {"type": "breakout", "azimuth_deg": float((a + 90) % 180),
+                                           "sigma_deg": 15.0},
+         "geometry": {"type": "Point", "coordinates": [float(x), float(y)]}}
+        for x, y, a in zip(lon, lat, az)]}
+
+
+def test_indicator_derived_spread_without_a_model():
+    from scipy.stats import circstd
+
+    rng = np.random.default_rng(8)
+    az = np.mod(40.0 + rng.normal(0.0, 12.0, 30), 180.0)
+    lon = -15.0 + rng.uniform(-1, 1, 30)
+    lat = -20.0 + rng.uniform(-1, 1, 30)
+    far = _indicator_fc([20.0], [10.0], [130.0])  # far away: outside the radius, left out
+    fc = _indicator_fc(lon, lat, az)
+    fc["features"] += far["features"]
+    doc = run(regime="normal", planes=["040/60"],
+              uncertainty={"indicators": fc, "indicator_radius_km": 300, "samples": 200})
+    info = doc["uncertainty"]["indicator_spread"]
+    # independent: scipy circstd of the doubled angles, halved (Mardia & Jupp axial std)
+    expected = 0.5 * np.degrees(circstd(np.radians(2 * az)))
+    assert_allclose(info["sigma_deg"], expected, rtol=1e-6)
+    assert "30 indicators within 300 km" in info["source"]
+    assert doc["uncertainty"]["azimuth_sigma_deg"] == info["sigma_deg"]

@@ -111,6 +111,12 @@ def build_request(args) -> dict:
         value = getattr(args, key)
         if value is not None:
             unc[key] = value
+    if args.indicators:
+        from stressmap.indicators import read_indicators
+
+        unc["indicators"] = read_indicators(args.indicators)
+    if args.indicator_radius_km is not None:
+        unc["indicator_radius_km"] = args.indicator_radius_km
     if args.ensemble_distributions:
         unc["ensemble_distributions"] = _json_or_file(args.ensemble_distributions,
                                                       "--ensemble-distributions")
@@ -277,6 +283,11 @@ def register(subparsers) -> None:
     g.add_argument("--azimuth-sigma-deg", type=float,
                    help="standard deviation of SHmax azimuth when no ensemble is used "
                         "(default 15)")
+    g.add_argument("--indicators", metavar="FILE",
+                   help="stress indicators (CSV/GeoJSON/GeoPackage): derive the azimuth spread "
+                        "from them when no ensemble is used and --azimuth-sigma-deg is not given")
+    g.add_argument("--indicator-radius-km", type=float,
+                   help="use indicators within this distance of the site (default 500)")
     g.add_argument("--ensemble-members", type=int,
                    help="sample azimuth/regime/shape ratio from a model ensemble of this size")
     g.add_argument("--ensemble-distributions", metavar="JSON|FILE",
