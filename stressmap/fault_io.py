@@ -162,11 +162,20 @@ def faults_from_geojson(collection: dict, field: str = "faults") -> FaultInput:
                 problems.append(problem(f"dip_deg must be between 0 and 90, got {dip}",
                                         field="dip_deg", row=i))
             xy = geom.get("coordinates") if gtype == "Point" else None
+            if xy is not None:
+                try:
+                    xy = [float(xy[0]), float(xy[1])]
+                    if not (math.isfinite(xy[0]) and math.isfinite(xy[1]) and abs(xy[1]) <= 90):
+                        raise ValueError
+                except (TypeError, ValueError, IndexError, KeyError):
+                    problems.append(problem("a point needs [lon, lat] with latitude in "
+                                            "[-90, 90]", field="geometry", row=i))
+                    xy = None
             planes["strike_deg"].append(strike)
             planes["dip_deg"].append(dip)
             planes["name"].append(name)
-            planes["lon"].append(float(xy[0]) if xy else math.nan)
-            planes["lat"].append(float(xy[1]) if xy else math.nan)
+            planes["lon"].append(xy[0] if xy else math.nan)
+            planes["lat"].append(xy[1] if xy else math.nan)
             planes["feature"].append(i - 1)
         else:
             problems.append(problem(f"geometry type {gtype!r} is not a fault: use LineString, "

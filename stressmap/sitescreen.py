@@ -695,6 +695,12 @@ def _site_magnitudes(req: ScreenRequest, regime_code: int, phi: float, sv: float
                          "check the measured magnitude against the regime",
                          [problem("inconsistent magnitudes",
                                   field="shmin_mpa" if req.shmin_mpa is not None else "shmax_mpa")])
+    if shmin <= pp:
+        raise InputError(f"Shmin {shmin:.1f} MPa does not exceed the pore pressure {pp:.1f} MPa "
+                         "(negative effective stress: the rock would be hydraulically fractured)",
+                         [problem("the least stress must exceed the pore pressure",
+                                  field="shmin_mpa" if req.shmin_mpa is not None else
+                                  "shmax_mpa")])
     ratio = float(sc.frictional_ratio(shmax, shmin, sv, pp))
     limit = float(sc.frictional_limit_ratio(mu))
     if ratio > limit * (1 + 1e-9):
@@ -798,6 +804,8 @@ def screen(req: ScreenRequest, model=None, model_info: dict | None = None) -> Sc
         planes["at_or_beyond_failure"] = planes["pore_pressure_margin_mpa"] <= 0.0
     result = ScreenResult(req, site, planes, planes.pop("geometry"), stress, notes=notes,
                           model_info=model_info)
+    if model is None and (req.ensemble_members or req.ensemble_distributions):
+        notes.append("ensemble options ignored: no model was given")
     if req.samples > 0:
         _sample(result, model, profile, rho_mean, code, phi, az, orient)
     order = fl.rank_order(result.planes.get("pore_pressure_margin_mpa", np.zeros(0)))
