@@ -117,6 +117,10 @@ def test_csv_and_png(client):
         ({**BODY, "uncertainty": {"friction_range": [0.9, 0.2]}}, 422,
          "uncertainty.friction_range"),
         ({"depth_km": 3}, 422, "site"),
+        ({**BODY, "shmin_mpa": 20.0}, 422, "shmin_mpa"),  # below Pp 29.4 MPa
+        ({**BODY, "faults": {"type": "FeatureCollection", "features": [
+            {"type": "Feature", "properties": {"strike_deg": 1, "dip_deg": 50},
+             "geometry": {"type": "Point", "coordinates": ["x", 1]}}]}}, 422, "faults.geometry"),
     ],
 )
 def test_bad_requests_are_problem_details(client, body, status, field):
