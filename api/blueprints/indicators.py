@@ -133,9 +133,10 @@ def _run_compare(model, gdf, weights, fmt, picture, meta):
                         table["weight"].to_numpy(float)[inside], caption=caption)
     if fmt == "csv":
         return indicators_csv(flat, cols, meta)
-    fc = indicators_geojson(flat, cols, to_jsonable(meta | {"summary": summary}))
-    return fc if fmt == "geojson" else {"caution": CAUTION, "model_id": meta["model_id"],
-                                        "summary": summary, "indicators": indicators_geojson(flat, cols)}
+    if fmt == "geojson":
+        return indicators_geojson(flat, cols, to_jsonable(meta | {"summary": summary}))
+    return {"caution": CAUTION, "model_id": meta["model_id"], "summary": summary,
+            "indicators": indicators_geojson(flat, cols)}
 
 
 @bp.post("/models/<model_id>/compare")
