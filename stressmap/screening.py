@@ -269,11 +269,17 @@ def regime_code_of(regime) -> np.ndarray:
     """
     aliases = {"normal": 0, "extension": 0, "strike-slip": 1, "strike_slip": 1, "strikeslip": 1,
                "ss": 1, "reverse": 2, "thrust": 2}
+    numeric = np.asarray(regime) if not isinstance(regime, str) else None
+    if numeric is not None and numeric.dtype.kind in "iu":   # codes: vectorised (samples)
+        if numeric.size and (numeric.min() < 0 or numeric.max() > 2):
+            raise InputError("regime codes must be 0, 1 or 2",
+                             [problem("unknown regime code", field="regime")])
+        return numeric.astype(np.int8)
     arr = np.asarray(regime, dtype=object)
     flat = arr.reshape(-1)
     out = np.empty(flat.shape, dtype=np.int8)
     bad = []
-    for i, r in enumerate(flat.tolist()):  # names are few (sites), never faults or samples
+    for i, r in enumerate(flat.tolist()):  # names are few (user input); codes take the path above
         key = r.strip().lower() if isinstance(r, str) else r
         if isinstance(key, str) and key in aliases:
             out[i] = aliases[key]

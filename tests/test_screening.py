@@ -181,6 +181,9 @@ def test_regime_names_and_errors():
     with pytest.raises(InputError) as err:
         sc.regime_code_of("oblique")
     assert err.value.problems[0]["field"] == "regime"
+    assert sc.regime_code_of(np.array([2, 0, 1])).tolist() == [2, 0, 1]  # codes of samples
+    with pytest.raises(InputError):
+        sc.regime_code_of(np.array([0, 3]))
 
 
 @pytest.mark.parametrize("az", [0.0, 30.0, 90.0, 135.0, 179.0])
