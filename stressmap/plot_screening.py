@@ -107,8 +107,8 @@ def mohr_figure(result):
             ax.annotate(str(r), (xe, yt), textcoords="offset points", xytext=(4, 4),
                         fontsize=7)
     for name, v in (("\u03c3\u2083'", s3), ("\u03c3\u2082'", s2), ("\u03c3\u2081'", s1)):
-        ax.annotate(name, (v, 0.0), textcoords="offset points", xytext=(0, -12), ha="center",
-                    fontsize=8)
+        ax.annotate(name, (v, 0.0), textcoords="offset points", xytext=(3, 3), ha="left",
+                    va="bottom", fontsize=8)
     ax.set_xlim(min(0.0, s3 - 1.0), x_max)
     ax.set_ylim(0.0, max((s1 - s3) / 2 * 1.25, coh + 1.0))
     ax.set_aspect("equal", adjustable="box")
@@ -149,6 +149,23 @@ def polygon_figure(result):
     ax.text((sv + ceiling) / 2 - 0.06 * (ceiling - sv), (sv + 2 * ceiling) / 3 + 0.05 *
             (ceiling - sv), "RF", ha="center", fontsize=10, color="0.3")
     if result.samples is not None:
+        from stressmap.screening import stress_polygon
+
+        smp = result.samples
+        mu_lo, mu_hi = float(np.min(smp["friction"])), float(np.max(smp["friction"]))
+        if mu_hi > mu_lo:  # the polygons of the sampled friction range (central Sv and Pp)
+            for mu in (mu_lo, mu_hi):
+                ax.add_patch(Polygon(stress_polygon(sv, s["pp_mpa"], mu), closed=True,
+                                     fill=False, ls="--", lw=0.7, ec="0.45",
+                                     gid="polygon-friction-range"))
+            ax.plot([], [], ls="--", lw=0.7, color="0.45",
+                    label=f"limits for friction {mu_lo:.2f} and {mu_hi:.2f}")
+        xs = np.concatenate([smp["shmin_mpa"], smp["shmax_mpa"]])
+        xs = xs[np.isfinite(xs)]
+        if xs.size:
+            pad = 0.05 * (ceiling - floor)
+            lo = min(lo, float(np.percentile(xs, 0.5)) - pad)
+            hi = max(hi, float(np.percentile(xs, 99.5)) + pad)
         ax.scatter(result.samples["shmin_mpa"], result.samples["shmax_mpa"], s=4, alpha=0.25,
                    color="#2166ac", lw=0, gid="estimate-samples", label="sampled estimates")
         p = result.uncertainty or {}
