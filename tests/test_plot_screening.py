@@ -77,6 +77,12 @@ def test_stress_polygon_plot(result):
     (h,) = _by_gid(ax, "sv-line-shmax")
     assert_allclose(h.get_ydata(), s["sv_mpa"])
     assert len(_by_gid(ax, "estimate-samples")) == 1
+    # dashed polygons for the extremes of the sampled friction (same construction)
+    mu = result.samples["friction"]
+    dashed = sorted((p.get_xy()[:4] for p in _by_gid(ax, "polygon-friction-range")),
+                    key=lambda v: v[1, 1])
+    assert_allclose(dashed[0], sc.stress_polygon(s["sv_mpa"], s["pp_mpa"], mu.min()))
+    assert_allclose(dashed[1], sc.stress_polygon(s["sv_mpa"], s["pp_mpa"], mu.max()))
 
 
 def test_map_colours_traces_by_margin_and_scale_bar_is_true(result):
