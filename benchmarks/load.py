@@ -70,6 +70,15 @@ def start_server(data_dir: Path, threads: int | None, timeout_s: float = 600.0):
     return proc, base, model_id
 
 
+def cpu_seconds(pid: int) -> float:
+    """User + system CPU time of a process, all its threads (Linux /proc/<pid>/stat)."""
+    try:
+        fields = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()
+    except OSError:
+        return float("nan")
+    return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
+
+
 def stop_server(proc) -> None:
     if proc.poll() is None:
         os.killpg(proc.pid, signal.SIGINT)
@@ -134,8 +143,13 @@ def percentile(values, q: float) -> float:
 
 def report(result: dict, clients: int) -> bool:
     wall = result["wall_s"]
+    n_all = sum(len(v) for v in result["latencies"].values())
     print(f"wall time {wall:.1f} s, {clients} concurrent clients, "
           f"{result['unsent']} requests not sent (time limit)")
+    print(f"CPU per request: server {1000 * result['server_cpu_s'] / max(n_all, 1):.2f} ms, "
+          f"load client {1000 * result['client_cpu_s'] / max(n_all, 1):.2f} ms; "
+          f"machine load average before the run {result['loadavg']:.1f} on {os.cpu_count()} cpus "
+          "(figures from a busy machine understate the service)")
     all_ok = True
     for kind in ("point", "grid"):
         lat = result["latencies"][kind]
@@ -175,8 +189,13 @@ def main(argv=None) -> int:
         with httpx.Client(base_url=f"{base}/api/v1/models/{model_id}", timeout=60) as warm:
             warm.post("/predict", json={"points": [list(POINTS[0])]}).raise_for_status()
             warm.get("/field", params=GRID_QUERY).raise_for_status()
+        loadavg = os.getloadavg()[0]
+        server_cpu, client_cpu = cpu_seconds(proc.pid), time.process_time()
         result = asyncio.run(drive(base, model_id, args.clients, args.requests, args.time_limit,
                                    max(args.grid_every, 1)))
+        result["server_cpu_s"] = cpu_seconds(proc.pid) - server_cpu
+        result["client_cpu_s"] = time.process_time() - client_cpu
+        result["loadavg"] = loadavg
     finally:
         stop_server(proc)
     return 0 if report(result, args.clients) else 1
