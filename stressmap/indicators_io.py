@@ -200,8 +200,10 @@ def indicators_csv(frame, columns=None, meta: dict | None = None) -> str:
     """
     columns = list(columns or [c for c in frame.columns if c != "geometry"])
     out = frame[columns].copy()
+    from pandas.api.types import is_string_dtype
+
     for c in out.columns:
-        if out[c].dtype == object:
+        if out[c].dtype == object or is_string_dtype(out[c].dtype):  # pandas 3: str dtype
             out[c] = out[c].map(_csv_cell)
     head = "".join(f"# {k}: {v}\n" for k, v in (meta or {}).items())
     return head + out.to_csv(index=False, float_format="%.10g", lineterminator="\n")
