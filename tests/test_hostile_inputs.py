@@ -48,7 +48,7 @@ class Case:
     headers: dict = field(default_factory=dict)
 
     def __str__(self):
-        return self.file
+        return f"{self.target}:{self.file}"
 
 
 JSON = "application/json"
@@ -158,6 +158,13 @@ CASES = [
     Case("indicators/deeply_nested.geojson.gz", "indicators", 422, r"nested|not valid JSON|depth"),
     Case("indicators/polygon_geometry.geojson", "indicators", 422, r"must be a Point"),
     Case("indicators/spreadsheet.xlsx", "indicators", 422, r"unsupported indicator file type '\.xlsx'"),
+    # -- the same indicator files sent to the service (POST /models/{id}/compare) -----------
+    Case("indicators/formula_injection.csv", "compare", 422, r"HYPERLINK"),
+    Case("indicators/at_command.csv", "compare", 422, r"@SUM"),
+    Case("indicators/nan_and_infinity.csv", "compare", 422, r"row=1.*lon|lon.*row=1"),
+    Case("indicators/latitude_beyond_pole.csv", "compare", 422, r"91"),
+    Case("indicators/huge_number.csv", "compare", 422, r"azimuth_deg"),
+    Case("indicators/polygon_geometry.geojson", "compare", 422, r"must be a Point"),
 ]
 
 
@@ -283,6 +290,11 @@ def _send(app, model_id: str, case: Case, tmp_path: Path):
     elif case.target == "predict":
         resp = client.post(f"/api/v1/models/{model_id}/predict", data=data,
                            content_type=case.content_type, headers=case.headers)
+    elif case.target == "compare":
+        text = data.decode("utf-8")
+        body = ({"indicators_csv": text} if case.file.endswith(".csv")
+                else {"indicators": json.loads(text)})
+        resp = client.post(f"/api/v1/models/{model_id}/compare", json=body)
     elif case.target == "screen":
         resp = client.post("/api/v1/screen", data=data, content_type=case.content_type)
     elif case.target == "field":
@@ -336,6 +348,17 @@ def test_formula_text_is_neutralised_when_echoed_as_csv(service):
     import csv
     import io
 
+    rows = [r for r in csv.reader(io.StringIO(resp.get_data(as_text=True)))
+            if r and not r[0].startswith("#")]
+    cells = [c for r in rows for c in r]
+    assert not any(c[:1] in ("=", "+", "@") for c in cells), cells
+    assert any("HYPERLINK" in c for c in cells)
+
+    csv_text = ("id,lon,lat,type,azimuth_deg,quality\n"
+                '"=HYPERLINK(""http://example.invalid"")",-15,-20,breakout,30,A\n')
+    resp = app.test_client().post(f"/api/v1/models/{model_id}/compare",
+                                  json={"indicators_csv": csv_text, "format": "csv"})
+    assert resp.status_code == 200, resp.get_data(as_text=True)
     rows = [r for r in csv.reader(io.StringIO(resp.get_data(as_text=True)))
             if r and not r[0].startswith("#")]
     cells = [c for r in rows for c in r]
