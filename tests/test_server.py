@@ -34,19 +34,19 @@ STRESSMAP = Path(sys.executable).with_name("stressmap")
 class Server:
     """A `stressmap serve --port 0` subprocess in its own session (process group)."""
 
-    def __init__(self, data_dir: Path, **env):
+    def __init__(self, data_dir: Path, *args: str, **env):
         environ = dict(os.environ, STRESSMAP_DATA_DIR=str(data_dir), STRESSMAP_JOB_WORKERS="1",
                        **{f"STRESSMAP_{k}": str(v) for k, v in env.items()})
         environ.pop("STRESSMAP_API_TOKEN", None)
-        self.proc = subprocess.Popen([str(STRESSMAP), "serve", "--port", "0"],
+        self.proc = subprocess.Popen([str(STRESSMAP), "serve", "--port", "0", *args],
                                      stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True,
                                      env=environ, start_new_session=True)
         self.lines: queue.Queue = queue.Queue()
         self._pump_thread = threading.Thread(target=self._pump, daemon=True)
         self._pump_thread.start()
-        deadline = time.monotonic() + 60
+        deadline = time.monotonic() + 120
         self.base = None
-        seen = []
+        seen = self.seen = []
         while self.base is None:
             try:
                 line = self.lines.get(timeout=max(deadline - time.monotonic(), 0.01))
@@ -184,3 +184,36 @@ def test_killed_builds_leave_no_half_model_and_fail_after_restart(data_dir):
         assert (data_dir / "models" / resp.json()["model_id"] / "fields.nc").is_file()
     finally:
         restarted.stop()
+
+
+def test_demo_service_prints_two_requests_that_work_as_printed(data_dir):
+    """`make serve` runs `stressmap serve --demo`: the demo model is ready before the server
+    listens, and the two printed example requests answer as printed (run here by the shell)."""
+    import json
+    import shutil
+
+    if shutil.which("curl") is None:
+        pytest.skip("curl is not installed")
+    server = Server(data_dir, "--demo")
+    try:
+        while not any("press Ctrl-C" in line for line in server.seen):
+            server.seen.append(server.lines.get(timeout=60))
+        commands = [line.strip() for line in server.seen if line.strip().startswith("curl ")]
+        assert len(commands) == 2, server.seen
+        outputs = [subprocess.run(["sh", "-c", c], capture_output=True, text=True, timeout=60,
+                                  check=True).stdout for c in commands]
+        model = json.loads(outputs[0])
+        assert model["status"] == "ready" and "fictional" in model["name"]
+        fc = json.loads(outputs[1])
+        assert fc["type"] == "FeatureCollection" and fc["caution"] == CAUTION
+        assert fc["model_id"] == model["id"] and len(fc["features"]) == 2
+        assert all(f["properties"]["inside"] for f in fc["features"])
+    finally:
+        server.stop()
+    again = Server(data_dir, "--demo")  # a restart reuses the stored demo model
+    try:
+        while not any("press Ctrl-C" in line for line in again.seen):
+            again.seen.append(again.lines.get(timeout=60))
+        assert any(model["id"] in line for line in again.seen if "ready" in line)
+    finally:
+        again.stop()
