@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import json
 import math
+import sys
 
 import numpy as np
 
@@ -40,7 +41,7 @@ def json_body(request) -> object:
         raise ApiProblem(400, "Malformed JSON", "the request body is empty; send a JSON document",
                          [problem("empty body", field="(body)")])
     try:
-        return json.loads(raw, parse_constant=_refuse_constant)
+        return json.loads(raw, parse_constant=_refuse_constant, parse_int=_parse_int)
     except UnicodeDecodeError:
         raise ApiProblem(400, "Malformed JSON", "the request body is not UTF-8 text",
                          [problem("not UTF-8", field="(body)")]) from None
@@ -56,6 +57,15 @@ def json_body(request) -> object:
     except ValueError as exc:  # NaN/Infinity (RFC 8259 has none), integers over 4300 digits
         raise ApiProblem(400, "Malformed JSON", f"the request body is not valid JSON: {exc}",
                          [problem(str(exc), field="(body)")]) from None
+
+
+def _parse_int(text: str) -> int:
+    """A JSON integer, refused when no float can hold it (every number is used as a float)."""
+    value = int(text)
+    if abs(value) > sys.float_info.max:
+        raise ValueError(f"the integer {text[:12]}... ({len(text)} digits) is too large; numbers "
+                         "must fit a 64-bit float")
+    return value
 
 
 def _refuse_constant(name: str):
@@ -230,10 +240,18 @@ def parse_bbox_text(text: str | None, field: str = "bbox") -> tuple[float, float
     return _parse_bbox(values, field)
 
 
+#: Smallest grid spacing accepted (km); below it the node count overflows (5e-324 km: 1/0).
+MIN_SPACING_KM = 0.001
+
+
 def _parse_spacing(value, field: str) -> float:
     if not _is_number(value) or value <= 0:
         raise InputError(f"{field} must be a positive number of km",
                          [problem(f"expected a positive number (km), got {_short(value)}",
+                                  field=field)])
+    if value < MIN_SPACING_KM:
+        raise InputError(f"{field} is below {MIN_SPACING_KM:g} km",
+                         [problem(f"spacing {value:g} km is finer than {MIN_SPACING_KM:g} km",
                                   field=field)])
     return float(value)
 
