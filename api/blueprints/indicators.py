@@ -74,7 +74,7 @@ def _flag(value, field):
 def _number(value, field, default=None, integer=False):
     if value is None and default is not None:
         return default
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not np.isfinite(value) \
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not np.isfinite(float(value)) \
             or (integer and float(value) != int(value)):
         kind = "a whole number" if integer else "a finite number"
         raise InputError(f"{field} must be {kind}", [problem(f"expected {kind}, got {value!r}", field=field)])
