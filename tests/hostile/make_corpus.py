@@ -163,6 +163,7 @@ def predictions() -> None:
            {"region": {"bbox": [170, -30, -170, -10], "spacing_km": 1e-300}})
     _write("predict/negative_spacing.json", {"region": {"bbox": [-20, -30, 0, -10],
                                                         "spacing_km": -5}})
+    _write("predict/integer_beyond_float.json", '{"points": [[' + "9" * 400 + ', -20]]}')
     _write("predict/nan_weight.json", {"points": [[-15.0, -20.0]],
                                        "weights": {"ridge": float("nan")}})
     _write("predict/unknown_weight_group.json", {"points": [[-15.0, -20.0]],
@@ -180,6 +181,7 @@ def queries() -> None:
     _write("queries/bbox_three_values.txt", "bbox=-20,-30,0&spacing_km=100")
     _write("queries/bbox_formula.txt", "bbox=%3DSUM(A1%3AA9),-30,0,-10&spacing_km=100")
     _write("queries/spacing_tiny.txt", "bbox=-20,-30,0,-10&spacing_km=1e-300")
+    _write("queries/spacing_subnormal.txt", "bbox=-20,-30,0,-10&spacing_km=5e-324")
     _write("queries/spacing_nan.txt", "bbox=-20,-30,0,-10&spacing_km=NaN")
     _write("queries/non_utf8_bytes.txt", "bbox=%FF%FE,-30,0,-10&spacing_km=100")
     _write("queries/weights_injection.txt", "bbox=-20,-30,0,-10&spacing_km=100&weights=ridge%3D1%3B%20DROP")
