@@ -152,35 +152,37 @@ def make_sheet(xyz, triangles, thickness_m, young_pa, poisson, element_stiffness
     tri = np.ascontiguousarray(triangles, dtype=np.int64)
     if tri.ndim != 2 or tri.shape[1] != 3:
         raise ValueError("triangles must have shape (m, 3)")
+    m = tri.shape[0]
     frames = node_frames(xyz, planar=planar)
-    p = xyz[tri]  # (m, 3, 3)
-    d1 = p[:, 1] - p[:, 0]
-    d2 = p[:, 2] - p[:, 0]
+    p0 = xyz[tri[:, 0]]
+    d1 = xyz[tri[:, 1]] - p0
+    d2 = xyz[tri[:, 2]] - p0
     nrm = np.cross(d1, d2)
-    twice_area = np.linalg.norm(nrm, axis=1)
+    twice_area = np.sqrt(np.einsum("mc,mc->m", nrm, nrm))
     if np.any(twice_area <= 0):
         raise ValueError("degenerate triangle (zero area) in mesh")
-    e1 = d1 / np.linalg.norm(d1, axis=1, keepdims=True)
-    e2 = np.cross(nrm / twice_area[:, None], e1)
+    len1 = np.sqrt(np.einsum("mc,mc->m", d1, d1))
+    e1 = d1 / len1[:, None]
+    e2 = np.cross(nrm, e1) / twice_area[:, None]
     basis = np.stack([e1, e2], axis=1)  # (m, 2, 3)
-    # local 2D coordinates of the three nodes, relative to node 0
-    loc = np.einsum("mkc,mac->mak", basis, p - p[:, :1])  # (m, 3 nodes, 2)
-    x, y = loc[..., 0], loc[..., 1]
-    area = 0.5 * twice_area
-    # shape-function gradients (m, 3)
-    gx = np.stack([y[:, 1] - y[:, 2], y[:, 2] - y[:, 0], y[:, 0] - y[:, 1]], axis=1) / twice_area[:, None]
-    gy = np.stack([x[:, 2] - x[:, 1], x[:, 0] - x[:, 2], x[:, 1] - x[:, 0]], axis=1) / twice_area[:, None]
-    # projection of nodal frames into the facet basis: t[m, node, local k, frame j] = e_k . F_j
-    t = np.einsum("mkc,majc->makj", basis, frames[tri])  # (m, 3, 2, 2)
-    bmat = np.empty((tri.shape[0], 3, 3, 2))
+    # local coordinates: node 0 at the origin, node 1 at (len1, 0), node 2 at (x2, y2)
+    x2 = np.einsum("mc,mc->m", d2, e1)
+    y2 = twice_area / len1
+    inv2a = 1.0 / twice_area
+    gx = np.stack([-y2, y2, np.zeros(m)], axis=1) * inv2a[:, None]  # dN_i/dx (m, 3)
+    gy = np.stack([x2 - len1, -x2, len1], axis=1) * inv2a[:, None]  # dN_i/dy
+    # t[m, node, k, j] = e_k . F_j : nodal frames projected on the facet basis
+    t = np.einsum("mkc,majc->makj", basis, frames[tri], optimize=True)
+    bmat = np.empty((m, 3, 3, 2))
     bmat[:, 0] = gx[..., None] * t[:, :, 0, :]
     bmat[:, 1] = gy[..., None] * t[:, :, 1, :]
     bmat[:, 2] = gy[..., None] * t[:, :, 0, :] + gx[..., None] * t[:, :, 1, :]
-    bmat = bmat.reshape(-1, 3, 6)
+    bmat = bmat.reshape(m, 3, 6)
+    area = 0.5 * twice_area
     c = float(young_pa) * float(thickness_m) / (1.0 - float(poisson) ** 2)
     d0 = c * np.array([[1.0, poisson, 0.0], [poisson, 1.0, 0.0], [0.0, 0.0, 0.5 * (1.0 - poisson)]])
-    factor = np.ones(tri.shape[0]) if element_stiffness is None else np.asarray(element_stiffness, float)
-    if factor.shape != (tri.shape[0],) or not np.all(np.isfinite(factor)) or np.any(factor <= 0):
+    factor = np.ones(m) if element_stiffness is None else np.asarray(element_stiffness, float)
+    if factor.shape != (m,) or not np.all(np.isfinite(factor)) or np.any(factor <= 0):
         raise ValueError("element_stiffness must be (m,) positive finite factors")
     dmat = factor[:, None, None] * d0
     return Sheet(xyz=xyz, triangles=tri, frames=frames, basis=np.ascontiguousarray(basis),
@@ -191,16 +193,28 @@ def make_sheet(xyz, triangles, thickness_m, young_pa, poisson, element_stiffness
 def assemble_stiffness(sheet: Sheet) -> sp.csr_matrix:
     """Global stiffness matrix (2n, 2n) CSR, N/m per m of displacement.
 
-    All element matrices ``A_e B^T D B`` are formed in one einsum and summed COO -> CSR.
+    All element matrices ``A_e B^T D B`` are formed at once (batched matmul) and summed as
+    2 x 2 node blocks: the node-pair pattern (9 per element) is sorted once, the blocks are
+    summed by ``reduceat`` and the block matrix is expanded to CSR.
     """
-    ke = np.einsum("m,mai,mab,mbj->mij", sheet.area, sheet.bmat, sheet.dmat, sheet.bmat,
-                   optimize=True)
-    dofs = sheet.element_dofs
-    rows = np.broadcast_to(dofs[:, :, None], ke.shape).reshape(-1)
-    cols = np.broadcast_to(dofs[:, None, :], ke.shape).reshape(-1)
-    k = sp.csr_matrix((ke.reshape(-1), (rows, cols)), shape=(sheet.n_dofs, sheet.n_dofs))
-    k.sum_duplicates()
-    return k
+    m = sheet.triangles.shape[0]
+    n = sheet.n_nodes
+    db = np.matmul(sheet.dmat, sheet.bmat)  # (m, 3, 6)
+    ke = np.matmul(sheet.bmat.transpose(0, 2, 1), db)  # (m, 6, 6)
+    ke *= sheet.area[:, None, None]
+    # (m, a, i, b, j) -> node-pair blocks (m, a, b, i, j)
+    blocks = ke.reshape(m, 3, 2, 3, 2).transpose(0, 1, 3, 2, 4).reshape(m * 9, 4)
+    tri = sheet.triangles
+    keys = (tri[:, :, None] * n + tri[:, None, :]).reshape(-1)
+    order = np.argsort(keys, kind="stable")  # radix sort of integer keys
+    sorted_keys = keys[order]
+    starts = np.flatnonzero(np.concatenate([[True], sorted_keys[1:] != sorted_keys[:-1]]))
+    uniq = sorted_keys[starts]
+    summed = np.add.reduceat(blocks[order], starts, axis=0)
+    rows = uniq // n
+    indptr = np.concatenate([[0], np.cumsum(np.bincount(rows, minlength=n))])
+    k = sp.bsr_matrix((summed.reshape(-1, 2, 2), uniq % n, indptr), shape=(2 * n, 2 * n))
+    return k.tocsr()
 
 
 def rigid_modes(sheet: Sheet) -> np.ndarray:
