@@ -83,8 +83,11 @@ def render(ds, fmt: str, meta: dict, *, grid: bool, model=None, extra_properties
                    f"{meta.get('build_time')}")
         if meta.get("weights"):
             caption += "; weights " + ", ".join(f"{k} {v:g}" for k, v in meta["weights"].items())
+        extent = None
+        if grid:  # the requested window (grid nodes span it)
+            extent = (float(np.min(lon)), float(np.min(lat)), float(np.max(lon)), float(np.max(lat)))
         body = shmax_map(lon, lat, az, ri, outline, title=f"SHmax and regime: {meta.get('model_name')}",
-                         caption=caption)
+                         caption=caption, extent=extent)
         headers["Content-Disposition"] = f'inline; filename="{stem}.png"'
     else:  # pragma: no cover - parse_format guards this
         raise ValueError(fmt)

@@ -153,8 +153,8 @@ def _fans(x, y, az_deg, sigma_deg, radius, kx, steps=9):
 
 
 def shmax_map(lon, lat, azimuth_deg, regime_index, outline=None, *, observed=None,
-              uncertainty_deg=None, title=None, caption=None, width_in: float = 9.0,
-              dpi: int = 130) -> bytes:
+              uncertainty_deg=None, title=None, caption=None, extent=None,
+              width_in: float = 9.0, dpi: int = 130) -> bytes:
     """Draw predicted SHmax ticks (coloured by regime) over a plate outline; return PNG bytes.
 
     Parameters
@@ -174,6 +174,9 @@ def shmax_map(lon, lat, azimuth_deg, regime_index, outline=None, *, observed=Non
     uncertainty_deg : array_like (n,), optional
         One-sigma SHmax uncertainty, drawn as a translucent fan around each tick.
     title : str, optional
+    extent : (W, S, E, N), optional
+        Map window in degrees (e.g. the requested region); default: the outline, the points and
+        the observed ticks.
     caption : str, optional
         First caption line (e.g. "Model 3f2a... built 2026-05-01T12:00:00Z"); the caution is
         always added after it.
@@ -198,6 +201,7 @@ def shmax_map(lon, lat, azimuth_deg, regime_index, outline=None, *, observed=Non
     from matplotlib.colors import Normalize
     from matplotlib.figure import Figure
     from matplotlib.lines import Line2D
+    from matplotlib.patches import Rectangle
 
     x = _as_1d("lon", lon)
     y = _as_1d("lat", lat, x.size)
@@ -217,8 +221,12 @@ def shmax_map(lon, lat, azimuth_deg, regime_index, outline=None, *, observed=Non
     if ex.size == 0:
         ex, ey = np.zeros(1), np.zeros(1)
     x0, x1, y0, y1 = ex.min(), ex.max(), ey.min(), ey.max()
+    if extent is not None:
+        x0, y0, x1, y1 = (float(v) for v in extent)
+        if x1 < x0:  # across the antimeridian: longitudes continue past 180
+            x1 += 360.0
     span = max(x1 - x0, y1 - y0, 1e-3)
-    pad = 0.06 * span
+    pad = 0.06 * span if extent is None else 0.03 * span
     x0, x1, y0, y1 = x0 - pad, x1 + pad, y0 - pad, y1 + pad
     lat0 = 0.5 * (y0 + y1)
     coslat = max(math.cos(math.radians(lat0)), 0.05)
@@ -245,6 +253,12 @@ def shmax_map(lon, lat, azimuth_deg, regime_index, outline=None, *, observed=Non
     ax.set_xlabel("longitude (deg)")
     ax.set_ylabel("latitude (deg)")
     ax.tick_params(labelsize=8)
+    ax.apply_aspect()
+    pos = ax.get_position()
+    pt_per_deg = pos.height * fig_h * 72.0 / (y1 - y0)  # points per degree of latitude
+    # Line widths follow the tick length, so dense grids stay readable (ticks never merge).
+    core_w = float(np.clip(0.2 * 2 * half_len * pt_per_deg, 0.7, 2.4))
+    case_w = core_w + 1.4
 
     cmap = matplotlib.colormaps["cividis"]
     norm = Normalize(vmin=0.0, vmax=3.0)
@@ -255,7 +269,8 @@ def shmax_map(lon, lat, azimuth_deg, regime_index, outline=None, *, observed=Non
         ls, lw, colour, _label = BOUNDARY_STYLES.get(kind, _OTHER_STYLE)
         ax.plot(sx, sy, linestyle=ls, linewidth=lw, color=colour, zorder=2,
                 solid_capstyle="butt")
-        if kind not in kinds_seen:
+        in_view = np.any((sx >= x0) & (sx <= x1) & (sy >= y0) & (sy <= y1))
+        if kind not in kinds_seen and in_view:
             kinds_seen.append(kind)
 
     # Uncertainty fans under the ticks.
@@ -269,10 +284,10 @@ def shmax_map(lon, lat, azimuth_deg, regime_index, outline=None, *, observed=Non
     # Predicted ticks: a dark casing under a coloured core keeps light colours readable.
     if n_good:
         ticks = _tick_segments(x[good], y[good], az[good], half_len, kx)
-        ax.add_collection(LineCollection(list(ticks), colors="#202020", linewidths=3.8,
+        ax.add_collection(LineCollection(list(ticks), colors="#202020", linewidths=case_w,
                                          capstyle="round", zorder=4))
         ax.add_collection(LineCollection(list(ticks), colors=cmap(norm(ri[good])),
-                                         linewidths=2.4, capstyle="round", zorder=5))
+                                         linewidths=core_w, capstyle="round", zorder=5))
 
     # Measured indicators: hollow ticks (white core, black rim) on top.
     obs_handle = None
@@ -300,13 +315,17 @@ def shmax_map(lon, lat, azimuth_deg, regime_index, outline=None, *, observed=Non
     bar_km = nice_scale_km(width_km)
     bar_deg = bar_km / (math.radians(1.0) * EARTH_RADIUS_KM * coslat)
     bx, by = x0 + 0.04 * (x1 - x0), y0 + 0.05 * (y1 - y0)
-    ax.plot([bx, bx + bar_deg], [by, by], color="black", linewidth=3.0, zorder=8,
+    # a white panel keeps the bar readable over dense ticks
+    ax.add_patch(Rectangle((bx - 0.015 * (x1 - x0), by - 0.025 * (y1 - y0)),
+                           bar_deg + 0.03 * (x1 - x0), 0.075 * (y1 - y0), facecolor="white",
+                           edgecolor="none", alpha=0.85, zorder=8))
+    ax.plot([bx, bx + bar_deg], [by, by], color="black", linewidth=3.0, zorder=9,
             solid_capstyle="butt")
-    ax.plot([bx, bx], [by - 0.008 * (y1 - y0), by + 0.008 * (y1 - y0)], color="black", lw=1)
-    ax.plot([bx + bar_deg] * 2, [by - 0.008 * (y1 - y0), by + 0.008 * (y1 - y0)], color="black",
-            lw=1)
+    tick_y = [by - 0.008 * (y1 - y0), by + 0.008 * (y1 - y0)]
+    ax.plot([bx, bx], tick_y, color="black", lw=1, zorder=9)
+    ax.plot([bx + bar_deg] * 2, tick_y, color="black", lw=1, zorder=9)
     ax.text(bx + bar_deg / 2, by + 0.015 * (y1 - y0), f"{bar_km:g} km", ha="center",
-            va="bottom", fontsize=8, zorder=8)
+            va="bottom", fontsize=8, zorder=9)
 
     # Legend: boundary kinds, then tick meanings.
     handles = []
