@@ -28,6 +28,7 @@ from __future__ import annotations
 import logging
 import math
 import os
+import queue
 from concurrent.futures import ThreadPoolExecutor, as_completed
 
 import numpy as np
@@ -43,6 +44,7 @@ __all__ = [
     "parameter_to_weight",
     "sample_weights",
     "chunk_statistics",
+    "workspace",
     "ensemble_statistics",
     "plan_chunks",
     "regime_index_from_principal",
@@ -300,7 +302,26 @@ def regime_index_from_principal(s_hmax, s_hmin):
     return np.where((a == 0) & (b == 0), np.nan, out)
 
 
-def chunk_statistics(unit, weights, percentiles=DEFAULT_PERCENTILES, member_chunk=256):
+def workspace(points, members, member_chunk=256) -> dict:
+    """Reusable work arrays for :func:`chunk_statistics` of up to ``points`` points.
+
+    Fresh large arrays cost page faults on first touch, which dominate the arithmetic here;
+    reusing one workspace per worker thread avoids them.
+    """
+    mc = max(1, min(int(member_chunk), int(members)))
+    return {
+        "shmax": np.empty((points, members)),
+        "shmin": np.empty((points, members)),
+        "x": np.empty((points * 3, mc)),
+        "d": np.empty((points, mc)),
+        "r": np.empty((points, mc)),
+        "t": np.empty((points, mc)),
+        "h": np.empty((points, mc)),
+    }
+
+
+def chunk_statistics(unit, weights, percentiles=DEFAULT_PERCENTILES, member_chunk=256,
+                     work=None):
     """Ensemble statistics of a chunk of points with every member (pure function).
 
     Parameters
@@ -311,6 +332,8 @@ def chunk_statistics(unit, weights, percentiles=DEFAULT_PERCENTILES, member_chun
     percentiles : sequence of float
     member_chunk : int
         Members combined per matrix product (bounds the temporaries).
+    work : dict, optional
+        A :func:`workspace` at least this large (reused between calls by one worker).
 
     Returns
     -------
@@ -333,58 +356,70 @@ def chunk_statistics(unit, weights, percentiles=DEFAULT_PERCENTILES, member_chun
     g, p, _ = unit.shape
     m_total = weights.shape[0]
     u = np.ascontiguousarray(unit.transpose(1, 2, 0)).reshape(p * 3, g)
-    shmax = np.empty((p, m_total))
-    shmin = np.empty((p, m_total))
+    step = max(1, min(int(member_chunk), m_total))
+    if work is None or work["shmax"].shape[0] < p or work["shmax"].shape[1] != m_total \
+            or work["x"].shape[1] < step:
+        work = workspace(p, m_total, step)
+    shmax = work["shmax"][:p]
+    shmin = work["shmin"][:p]
     cos_sum = np.zeros(p)
     sin_sum = np.zeros(p)
     n_dir = np.zeros(p)
     counts = np.zeros((p, 3))
     aphi_sum = np.zeros(p)
     n_reg = np.zeros(p)
-    step = max(int(member_chunk), 1)
     for m0 in range(0, m_total, step):
         w = weights[m0:m0 + step]
-        cols = slice(m0, m0 + w.shape[0])
-        x = (u @ w.T).reshape(p, 3, -1)
+        m = w.shape[0]
+        cols = slice(m0, m0 + m)
+        # einsum with an output buffer beats BLAS for this thin inner dimension (G ~ 5)
+        x = np.einsum("ng,gm->nm", u, w.T, out=work["x"][:p * 3, :m]).reshape(p, 3, m)
         see, snn, sen = x[:, 0], x[:, 1], x[:, 2]
-        d = snn - see
-        r = d * d
-        r += 4.0 * sen * sen
+        d = np.subtract(snn, see, out=work["d"][:p, :m])
+        r = np.multiply(d, d, out=work["r"][:p, :m])
+        t = np.multiply(sen, sen, out=work["t"][:p, :m])
+        t *= 4.0
+        r += t
         np.sqrt(r, out=r)  # r = s_hmax - s_hmin = hypot(s_nn - s_ee, 2 s_en)
+        mean = np.add(see, snn, out=t)
+        mean *= 0.5
+        half = np.multiply(r, 0.5, out=work["h"][:p, :m])
         a = shmax[:, cols]
         b = shmin[:, cols]
-        np.add(see, snn, out=b)
-        b *= 0.5  # mean
-        np.add(b, 0.5 * r, out=a)
-        b -= a
-        b += b + a  # b = 2 mean - a = mean - r/2
-        directed = r > 0
-        inv = np.divide(1.0, r, out=np.zeros_like(r), where=directed)
+        np.add(mean, half, out=a)
+        np.subtract(mean, half, out=b)
+        if r.min(initial=np.inf) > 0:  # the usual case: every member has a SHmax direction
+            inv = np.divide(1.0, r, out=half)
+            n_dir += m
+            undefined = None
+            n_undef = 0
+        else:
+            directed = r > 0
+            inv = np.divide(1.0, r, out=np.zeros_like(r), where=directed)
+            n_dir += np.count_nonzero(directed, axis=1)
+            undefined = ~directed
+            undefined &= a == 0
+            n_undef = np.count_nonzero(undefined, axis=1)
         cos_sum += np.einsum("pm,pm->p", d, inv)
         sin_sum += 2.0 * np.einsum("pm,pm->p", sen, inv)
-        n_dir += np.count_nonzero(directed, axis=1)
         # Regimes: b > 0 reverse; a > 0 >= b strike-slip; a <= 0 normal; a == b == 0 undefined.
         pos_a = a > 0
-        pos_b = b > 0
         n_pos_a = np.count_nonzero(pos_a, axis=1)
-        n_rev = np.count_nonzero(pos_b, axis=1)
-        undefined = ~directed
-        undefined &= a == 0
-        n_undef = np.count_nonzero(undefined, axis=1)
-        n_def = w.shape[0] - n_undef
+        n_rev = np.count_nonzero(b > 0, axis=1)
+        n_def = m - n_undef
         counts[:, 2] += n_rev
         counts[:, 1] += n_pos_a - n_rev
         counts[:, 0] += n_def - n_pos_a
-        # A-phi = (1 + [a > 0]) + num / den (see regime_index_from_principal), summed over
-        # members: reverse b / a, strike-slip b / (a - b) = b / r, normal -a / b.
-        den = np.where(pos_b, a, r)
-        np.copyto(den, b, where=~pos_a)
-        num = np.where(pos_a, b, -a)
-        if n_undef.any():
-            den[undefined] = 1.0
-            num[undefined] = 0.0
-        num /= den
-        aphi_sum += num.sum(axis=1) + n_pos_a + n_def
+        # A-phi = (1 + [a > 0]) + ratio (see regime_index_from_principal): reverse b / a and
+        # strike-slip b / (a - b) = b / r are both b / max(a, r); normal -a / b.
+        ratio = np.maximum(a, r, out=d)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            np.divide(b, ratio, out=ratio)
+            if n_pos_a.sum() < p * m:
+                np.copyto(ratio, -a / b, where=~pos_a)
+        if undefined is not None:
+            ratio[undefined] = 0.0
+        aphi_sum += ratio.sum(axis=1) + n_pos_a + n_def
         n_reg += n_def
     with np.errstate(divide="ignore", invalid="ignore"):
         resultant = np.clip(np.hypot(cos_sum, sin_sum) / n_dir, 0.0, 1.0)
@@ -403,26 +438,27 @@ def chunk_statistics(unit, weights, percentiles=DEFAULT_PERCENTILES, member_chun
         "prob_strike_slip": prob[:, 1],
         "prob_reverse": prob[:, 2],
         "regime_index": aphi_mean,
-        "s_hmax_mpa": np.percentile(shmax, q, axis=1).T.copy(),
-        "s_hmin_mpa": np.percentile(shmin, q, axis=1).T.copy(),
+        # the work arrays are scratch: partition them in place
+        "s_hmax_mpa": np.percentile(shmax, q, axis=1, overwrite_input=True).T.copy(),
+        "s_hmin_mpa": np.percentile(shmin, q, axis=1, overwrite_input=True).T.copy(),
     }
 
 
 def plan_chunks(n_points, members, groups, memory_mb=256.0, member_chunk=256):
     """Points per chunk so one chunk's arrays stay within ``memory_mb`` (MiB).
 
-    Per point a chunk keeps s_hmax and s_hmin of all members, a percentile working copy (3 M
-    floats), and about a dozen temporaries of a member sub-chunk.
+    Per point a chunk's workspace keeps s_hmax and s_hmin of all members (percentiles partition
+    them in place) and a few temporaries of a member sub-chunk (with room to spare).
 
     Examples
     --------
     >>> plan_chunks(100_000, 10_000, 6)
-    998
+    1520
     >>> plan_chunks(10, 10, 2)
     10
     """
     mc = min(int(member_chunk), int(members))
-    per_point = 8.0 * (3 * members + 14 * mc + 3 * groups)
+    per_point = 8.0 * (2 * members + 8 * mc + 3 * groups)
     p = int(memory_mb * 2**20 // per_point)
     return int(max(1, min(p, n_points)))
 
@@ -481,24 +517,34 @@ def ensemble_statistics(unit, weights, percentiles=DEFAULT_PERCENTILES, *, memor
     if scheduler is not None:
         _run_dask(scheduler, unit, weights, q, member_chunk, slices, store, report)
     else:
-        n_workers = workers or min(os.cpu_count() or 1, 4)
+        n_workers = max(1, min(int(workers or min(os.cpu_count() or 1, 4)), n_chunks))
+        mc = max(1, min(int(member_chunk), members))
+        spare = queue.SimpleQueue()  # one workspace per worker thread, reused chunk after chunk
+        for _ in range(n_workers):
+            spare.put(workspace(size, members, mc))
+
+        def run(sel):
+            work = spare.get()
+            try:
+                return chunk_statistics(unit[:, sel], weights, q, mc, work)
+            finally:
+                spare.put(work)
+
         done = 0
-        if n_workers <= 1 or n_chunks <= 1:
+        if n_workers == 1:
             for sel in slices:
-                store(sel, chunk_statistics(unit[:, sel], weights, q, member_chunk))
+                store(sel, run(sel))
                 done += 1
                 report(done / n_chunks, f"chunk {done}/{n_chunks}")
         else:
             with ThreadPoolExecutor(max_workers=n_workers) as pool:
                 # Submit lazily so at most ~2 chunks per worker are alive at once (bounded memory).
                 pending = {}
-                it = iter(enumerate(slices))
-                for _ in range(2 * n_workers):
-                    nxt = next(it, None)
-                    if nxt is None:
+                it = iter(slices)
+                for sel in it:
+                    pending[pool.submit(run, sel)] = sel
+                    if len(pending) >= 2 * n_workers:
                         break
-                    pending[pool.submit(chunk_statistics, unit[:, nxt[1]], weights, q,
-                                        member_chunk)] = nxt[1]
                 while pending:
                     fut = next(as_completed(pending))
                     sel = pending.pop(fut)
@@ -507,8 +553,7 @@ def ensemble_statistics(unit, weights, percentiles=DEFAULT_PERCENTILES, *, memor
                     report(done / n_chunks, f"chunk {done}/{n_chunks}")
                     nxt = next(it, None)
                     if nxt is not None:
-                        pending[pool.submit(chunk_statistics, unit[:, nxt[1]], weights, q,
-                                            member_chunk)] = nxt[1]
+                        pending[pool.submit(run, nxt)] = nxt
     out["n_members"] = members
     out["percentiles"] = q
     return out

@@ -181,7 +181,7 @@ def test_dask_cluster_agrees_with_local_threads(unit):
 def test_chunks_keep_memory_bounded():
     # 10,000 members x 100,000 points with the default 256 MiB per chunk.
     size = plan_chunks(100_000, 10_000, 6)
-    assert 8.0 * size * (3 * 10_000 + 14 * 256) <= 256 * 2**20
+    assert 8.0 * size * (2 * 10_000 + 8 * 256) <= 256 * 2**20
     assert size >= 100
 
 
