@@ -66,7 +66,7 @@ def test_calibrate_matches_the_library(svc, indicator_text, coarse_demo_model):
     from stressmap.indicators import indicators_from_csv_text
 
     app, client, model_id = svc
-    body = {"indicators": indicator_text, "reference": "ridge", "n_bootstrap": 30,
+    body = {"indicators_csv": indicator_text, "reference": "ridge", "n_bootstrap": 30,
             "n_random": 5, "seed": 3, "bounds": {"collision": [0, 3]}}
     resp = client.post(f"{API}/models/{model_id}/calibrate", json=body)
     assert resp.status_code == 200, resp.json
@@ -88,10 +88,12 @@ def test_calibrate_matches_the_library(svc, indicator_text, coarse_demo_model):
     "body, field",
     [
         ({}, "indicators"),
-        ({"indicators": 5}, "indicators"),
-        ({"indicators": "x", "n_bootstrap": -1}, "n_bootstrap"),
-        ({"indicators": "x", "confidence": 2}, "confidence"),
-        ({"indicators": "x", "colour": 1}, "colour"),
+        ({"indicators": "x"}, "indicators"),
+        ({"indicators_csv": 5}, "indicators_csv"),
+        ({"indicators": {}, "indicators_csv": "x"}, "indicators"),
+        ({"indicators_csv": "x", "n_bootstrap": -1}, "n_bootstrap"),
+        ({"indicators_csv": "x", "confidence": 2}, "confidence"),
+        ({"indicators_csv": "x", "colour": 1}, "colour"),
     ],
 )
 def test_calibrate_bad_requests_name_the_field(svc, body, field):
@@ -105,7 +107,7 @@ def test_calibrate_bad_requests_name_the_field(svc, body, field):
 def test_calibrate_unknown_bound_group(svc, indicator_text):
     _, client, model_id = svc
     resp = client.post(f"{API}/models/{model_id}/calibrate",
-                       json={"indicators": indicator_text, "bounds": {"nope": [0, 1]},
+                       json={"indicators_csv": indicator_text, "bounds": {"nope": [0, 1]},
                              "n_bootstrap": 0, "n_random": 0})
     assert resp.status_code == 422
     assert resp.json["errors"][0]["field"] == "bounds.nope"
@@ -113,10 +115,8 @@ def test_calibrate_unknown_bound_group(svc, indicator_text):
 
 def test_calibrate_unknown_model_is_404(svc):
     _, client, _ = svc
-    resp = client.post(f"{API}/models/{'0' * 32}/calibrate", json={"indicators": "x"})
-    assert resp.status_code in (404, 422)   # body checks may come first; never a 500
     resp = client.post(f"{API}/models/{'0' * 32}/calibrate",
-                       json={"indicators": "id,lon,lat,type,azimuth_deg\nA,1,1,overcoring,10\n"})
+                       json={"indicators_csv": "id,lon,lat,type,azimuth_deg\nA,1,1,overcoring,10\n"})
     assert resp.status_code == 404
 
 
@@ -230,3 +230,23 @@ def test_ensemble_needs_the_token_when_one_is_configured(stored):
         assert resp.status_code == 401
     finally:
         app.extensions["stressmap_jobs"].shutdown(wait=True)
+
+
+def test_calibrate_accepts_geojson_indicators(svc):
+    # Same FeatureCollection form as POST /models/{id}/compare (RFC 7946 Points).
+    _, client, model_id = svc
+    feats = [{"type": "Feature", "geometry": {"type": "Point", "coordinates": [lon, lat]},
+              "properties": {"id": f"G{i}", "type": "breakout", "azimuth_deg": az,
+                             "sigma_deg": 10}}
+             for i, (lon, lat, az) in enumerate([(-20, -20, 120), (-10, -15, 130),
+                                                 (-15, -25, 125), (-25, -12, 110)])]
+    resp = client.post(f"{API}/models/{model_id}/calibrate",
+                       json={"indicators": {"type": "FeatureCollection", "features": feats},
+                             "reference": "ridge", "bounds": {"transform": [1, 1],
+                                                              "overriding": [1, 1]},
+                             "n_bootstrap": 10, "n_random": 5})
+    assert resp.status_code == 200, resp.json
+    assert [r["id"] for r in resp.json["indicators"]] == ["G0", "G1", "G2", "G3"]
+    # breakouts are perpendicular to SHmax (common practice): observed SHmax = azimuth + 90
+    assert_allclose([r["observed_azimuth_deg"] for r in resp.json["indicators"]],
+                    [30, 40, 35, 20])

@@ -37,7 +37,7 @@ bp = Blueprint("analysis", __name__)
 
 ENSEMBLE_FILE = "ensemble.nc"
 _PROPS_FILE = "properties.json"
-_CAL_KEYS = {"indicators", "bounds", "reference", "n_bootstrap", "n_random", "n_starts",
+_CAL_KEYS = {"indicators", "indicators_csv", "bounds", "reference", "n_bootstrap", "n_random", "n_starts",
              "confidence", "seed", "skip_bad"}
 _ENS_KEYS = {"points", "region", "spacing_km", "members", "distributions", "seed", "percentiles"}
 _COUNT_LIMITS = {"n_bootstrap": (0, 2000), "n_random": (0, 2000), "n_starts": (1, 64),
@@ -73,16 +73,27 @@ def _count(body: dict, key: str, default: int, upper: int | None = None) -> int:
     return int(value)
 
 
-def _indicators(value, skip_bad: bool):
+def _indicators(body: dict, skip_bad: bool):
+    """The request's indicators: ``indicators`` (GeoJSON) or ``indicators_csv`` (CSV text), as
+    ``POST /models/{id}/compare`` takes them."""
     from stressmap.indicators import indicators_from_csv_text, indicators_from_geojson
 
-    if isinstance(value, dict):
-        return indicators_from_geojson(value, skip_bad=skip_bad, field="indicators")
-    if isinstance(value, str):
-        return indicators_from_csv_text(value, skip_bad=skip_bad, name="indicators")
-    raise InputError("indicators must be a GeoJSON FeatureCollection or CSV text",
-                     [problem("expected an object (GeoJSON) or a string (CSV)",
-                              field="indicators")])
+    if ("indicators" in body) == ("indicators_csv" in body):
+        raise InputError("give exactly one of indicators and indicators_csv",
+                         [problem("indicators (a GeoJSON FeatureCollection) or indicators_csv "
+                                  "(CSV text)", field="indicators")])
+    if "indicators_csv" in body:
+        text = body["indicators_csv"]
+        if not isinstance(text, str):
+            raise InputError("indicators_csv must be CSV text",
+                             [problem(f"got {type(text).__name__}", field="indicators_csv")])
+        return indicators_from_csv_text(text, skip_bad=skip_bad, name="indicators_csv")
+    value = body["indicators"]
+    if not isinstance(value, dict):
+        raise InputError("indicators must be a GeoJSON FeatureCollection",
+                         [problem(f"got {type(value).__name__}; CSV text goes in indicators_csv",
+                                  field="indicators")])
+    return indicators_from_geojson(value, skip_bad=skip_bad, field="indicators")
 
 
 def run_calibration(model, indicators, options: dict) -> dict:
@@ -115,9 +126,6 @@ def calibrate_model(model_id: str):
     check_id(model_id)
     body = _object_body()
     _unknown(body, _CAL_KEYS)
-    if "indicators" not in body:
-        raise InputError("indicators are required",
-                         [problem("give a GeoJSON FeatureCollection or CSV text", field="indicators")])
     skip_bad = body.get("skip_bad", False)
     if not isinstance(skip_bad, bool):
         raise InputError("skip_bad must be true or false", [problem(f"got {skip_bad!r}",
@@ -144,7 +152,7 @@ def calibrate_model(model_id: str):
         "n_starts": _count(body, "n_starts", 8),
         "seed": _count(body, "seed", 0),
     }
-    indicators = _indicators(body["indicators"], skip_bad)
+    indicators = _indicators(body, skip_bad)
     max_points = int(current_app.config.get("MAX_POINTS") or 0)
     if max_points and len(indicators) > max_points:
         raise InputError(f"too many indicators: {len(indicators):,} (limit {max_points:,})",
