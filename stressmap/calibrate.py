@@ -14,7 +14,9 @@ degrees (analytic: delta is uniform on [-90, 90)).
 
 Orientations are blind to an overall scale of the stress, so one *reference* group keeps its
 weight fixed (1.0 unless told otherwise) and the others are fitted within bounds, from several
-seeded starts with L-BFGS-B (scipy.optimize) using the analytic gradient. The predicted doubled
+seeded starts. Many fits (starts, bootstrap resamples, random data sets) are solved together by a
+batched projected Levenberg-Marquardt on the Gauss-Newton form of the misfit, and each answer is
+polished by L-BFGS-B (scipy.optimize) with the analytic gradient. The predicted doubled
 angle is a ratio of linear forms of ``w``: with ``d = s_nn - s_ee`` and ``e = 2 s_en``,
 ``cos 2(theta_p - theta_o) = (d cos 2theta_o + e sin 2theta_o) / hypot(d, e)``, so the objective
 and its gradient are matrix-vector products over all indicators at once.
