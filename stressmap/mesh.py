@@ -46,8 +46,9 @@ __all__ = ["Mesh", "mesh_plate", "triangle_angles_deg", "facet_areas_km2"]
 log = logging.getLogger(__name__)
 
 _RHO = 0.85  # lattice spacing ratio between size levels
-#: Ring corners with an interior angle below this (degrees) are sharp: the mesh is graded
-#: towards them and triangles touching them are left out of the minimum-angle statistic.
+#: Ring corners with an interior angle (spikes) or exterior angle (slit tips) below this
+#: (degrees) are sharp: the mesh is graded towards them and triangles within
+#: CORNER_ZONE_EDGES target edge lengths of them are left out of the minimum-angle statistic.
 SHARP_CORNER_DEG = 60.0
 CORNER_ZONE_EDGES = 1.5
 _R = EARTH_RADIUS_KM
@@ -148,6 +149,36 @@ def facet_areas_km2(xyz, triangles, radius_km: float = _R) -> np.ndarray:
 # size function
 
 
+def _narrow_places(ring_xyz: np.ndarray, edge_km: float):
+    """Places where two parts of the ring come closer than ``edge_km`` (a narrow neck, inlet or
+    spike): returns (points (k, 3), local width km (k,)), sampled every edge_km / 4.
+
+    Two samples face each other when their distance along the ring is more than twice their
+    straight distance; the width there is their straight distance. Elements no larger than the
+    width keep the two sides from crowding each other's triangles.
+    """
+    from scipy.spatial import cKDTree
+
+    a = ring_xyz
+    b = np.roll(ring_xyz, -1, axis=0)
+    length = _R * sphere.angle_between(a, b)
+    per = np.ceil(length / (edge_km / 4.0)).astype(np.int64)
+    arc = np.repeat(np.arange(len(a)), per)
+    t = (np.arange(per.sum()) - np.repeat(np.cumsum(per) - per, per)) / per[arc]
+    pts = sphere.slerp(a[arc], b[arc], t)
+    along = (np.cumsum(length) - length)[arc] + t * length[arc]
+    perimeter = float(length.sum())
+    k = min(16, len(pts))
+    chord, idx = cKDTree(pts).query(pts, k=k)
+    d = _R * chord
+    sep = np.abs(along[idx] - along[:, None])
+    sep = np.minimum(sep, perimeter - sep)
+    facing = (sep > 2.0 * d) & (d > 0)
+    width = np.min(np.where(facing, d, np.inf), axis=1)
+    narrow = width < edge_km
+    return pts[narrow], np.maximum(width[narrow], 0.01 * edge_km)
+
+
 class _Size:
     """Target edge length: on the sphere (km) and in the stereographic plane (plane km)."""
 
@@ -179,22 +210,32 @@ class _Size:
         # size shrinks towards the corner in proportion to the wedge width 2 d sin(angle/2))
         arc = _R * sphere.angle_between(ring_xyz, np.roll(ring_xyz, -1, axis=0))
         lfs = np.minimum(arc, np.roll(arc, 1))
-        corner = np.radians(_corner_angles_deg(ring_xyz))
+        # a spike (small interior angle) or the tip of a slit (small exterior angle)
+        corner = np.radians(_sharpness_deg(ring_xyz))
         sharp = corner < np.radians(SHARP_CORNER_DEG)
         wedge = 2.0 * np.sin(np.minimum(corner, np.pi / 2) / 2.0)
         fine = np.where(sharp, np.minimum(lfs, self.edge * np.maximum(wedge / 2.0, 0.02)), lfs)
         slope = np.where(sharp, np.minimum(wedge, self.grading), self.grading)
-        use = (fine < self.edge) | sharp
-        self.vertex_xyz = ring_xyz[use]
-        self.vertex_fine = np.maximum(fine[use], 1e-3)
-        self.vertex_slope = slope[use]
-        self.max_slope = max([self.grading] + ([float(self.vertex_slope.max())] if use.any() else []))
+        use = (fine < self.edge) & ~sharp
+        nx, nfine = _narrow_places(ring_xyz, self.edge)
+        # sources graded at the document's rate (short arcs, narrow places): k-d tree
+        self.vertex_xyz = np.concatenate([ring_xyz[use], nx])
+        self.vertex_fine = np.maximum(np.concatenate([fine[use], nfine]), 1e-3)
+        # sharp corners, each with its own (gentler) rate: evaluated one by one (few)
+        self.corners = [(ring_xyz[i], float(max(fine[i], 1e-3)), float(slope[i]))
+                        for i in np.flatnonzero(sharp)]
+        self.max_slope = self.grading
         self.tree = None
-        if use.any():
+        self.reach = 0.0
+        if len(self.vertex_xyz):
             from scipy.spatial import cKDTree
 
             self.tree = cKDTree(self.vertex_xyz)
-        fines = [self.edge] + [f for _, f, _ in self.points] + [f for _, f in self.polygons]
+            # beyond this chord no graded source can go below edge_km
+            arc = (self.edge - float(self.vertex_fine.min())) / self.grading / _R
+            self.reach = 2.0 * np.sin(min(arc, np.pi) / 2.0) * (1 + 1e-9)
+        fines = ([self.edge] + [f for _, f, _ in self.points] + [f for _, f in self.polygons]
+                 + [f for _, f, _ in self.corners])
         if len(self.vertex_fine):
             fines.append(float(self.vertex_fine.min()))
         self.min_km = min(fines)
@@ -216,14 +257,28 @@ class _Size:
             for poly, fine in self.polygons:
                 d = shapely.distance(poly, pts) / scale
                 np.minimum(h, fine + g * d, out=h)
+        if self.corners:
+            flat = xyz.reshape(-1, 3)
+            hf = h.reshape(-1)
+            for cxyz, fine, slope in self.corners:
+                # only points within the corner's reach (where it can go below edge_km)
+                near = flat @ cxyz > np.cos(min((self.edge - fine) / slope / _R, np.pi))
+                d = _R * sphere.angle_between(flat[near], cxyz)
+                hf[near] = np.minimum(hf[near], fine + slope * d)
+            h = hf.reshape(h.shape)
         if self.tree is not None:
-            k = min(8, len(self.vertex_fine))
-            chord, idx = self.tree.query(xyz.reshape(-1, 3), k=k)
-            chord = chord.reshape(len(chord), -1)
-            idx = idx.reshape(len(idx), -1)
-            d = 2.0 * _R * np.arcsin(np.minimum(chord / 2.0, 1.0))
-            hv = np.min(self.vertex_fine[idx] + self.vertex_slope[idx] * d, axis=1).reshape(h.shape)
-            np.minimum(h, hv, out=h)
+            # the 32 nearest graded sources within reach (the minimum over them is exact
+            # unless more than 32 sources lie closer than the best one)
+            flat = xyz.reshape(-1, 3)
+            k = min(32, len(self.vertex_fine))
+            chord, idx = self.tree.query(flat, k=k, distance_upper_bound=self.reach)
+            chord = chord.reshape(len(flat), -1)
+            idx = idx.reshape(len(flat), -1)
+            found = np.isfinite(chord)
+            safe = np.where(found, idx, 0)
+            d = 2.0 * _R * np.arcsin(np.minimum(np.where(found, chord, 0.0) / 2.0, 1.0))
+            hv = np.where(found, self.vertex_fine[safe] + g * d, np.inf).min(axis=1)
+            np.minimum(h, hv.reshape(h.shape), out=h)
         return h
 
     @property
@@ -651,8 +706,7 @@ def mesh_plate(plate, edge_km: float | None = None, smoothing_iterations: int = 
     element_province, element_stiffness = _assign_provinces(plate, xyz, tri, centre)
 
     angles = triangle_angles_deg(xyz, tri)
-    corner_angle = _corner_angles_deg(ring_xyz)
-    sharp = corner_angle < SHARP_CORNER_DEG
+    sharp = _sharpness_deg(ring_xyz) < SHARP_CORNER_DEG
     # nodes at sharp ring vertices: the boundary nodes with fraction 0 on an arc starting there
     # "near a sharp corner": a triangle touching it, or with a node within CORNER_ZONE_EDGES
     # target edge lengths of it (where the wedge is narrower than the mesh can resolve)
@@ -703,6 +757,12 @@ def _corner_angles_deg(ring_xyz):
     an = np.arctan2(np.sum(tn * n, axis=1), np.sum(tn * e, axis=1))
     # interior (left of travel) angle: from the next direction counter-clockwise to previous
     return np.degrees((ap - an) % (2.0 * np.pi))
+
+
+def _sharpness_deg(ring_xyz):
+    """The smaller of the interior and exterior angle at each ring vertex (degrees)."""
+    a = _corner_angles_deg(ring_xyz)
+    return np.minimum(a, 360.0 - a)
 
 
 def _assign_provinces(plate, xyz, tri, centre):
