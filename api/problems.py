@@ -42,7 +42,7 @@ def problem_response(status: int, title: str, detail: str, errors: list[dict] | 
     return resp
 
 
-_ABS_PATH = re.compile(r"(?<![\w.:/])/(?:[^\s'\"/:]+/)*[^\s'\":,;]+")
+_ABS_PATH = re.compile(r"(?<![\w.:/>])/(?:[^\s'\"/:]+/)*[^\s'\":,;]+")
 
 
 def scrub_paths(text: str) -> str:
