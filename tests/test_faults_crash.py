@@ -331,3 +331,33 @@ def test_index_database_unreadable_gives_a_problem(app_with_models):
         assert str(data_dir) not in body
     finally:
         db.write_bytes(saved)
+
+
+def test_index_that_cannot_be_opened_for_writing_gives_a_problem(app_with_models):
+    """The index's WAL and shared-memory files blocked by directories of the same name (SQLite
+    cannot open its journal, even as root): every request answers 503 problem+json naming the
+    index, creating a model changes nothing, and the store works again once they are gone."""
+    app, data_dir, ids = app_with_models
+    before = _predictions(app, ids)
+    blockers = [Path(str(data_dir / "index.sqlite3") + x) for x in ("-wal", "-shm")]
+    for path in blockers:
+        path.unlink(missing_ok=True)
+        path.mkdir()
+    client = app.test_client()
+    try:
+        for resp in (client.get("/api/v1/models"),
+                     client.post("/api/v1/models", json=coarse_demo_document(250.0))):
+            assert resp.status_code == 503
+            assert resp.content_type == "application/problem+json"
+            body = resp.get_json()
+            assert body["detail"] == ("cannot open the index database <data directory>/"
+                                      "index.sqlite3: unable to open database file")
+            assert str(data_dir) not in resp.get_data(as_text=True)
+    finally:
+        for path in blockers:
+            path.rmdir()
+    app.extensions["stressmap_store"]._cache.clear()
+    assert _predictions(app, ids) == before
+    assert [m["id"] for m in client.get("/api/v1/models").get_json()["models"]] == ids[::-1]
+    assert sorted(p.name for p in (data_dir / "models").iterdir()) == sorted(ids)
+    assert integrity(data_dir) == ["ok"]
