@@ -69,6 +69,9 @@ DEFAULTS = {
     "max_dip_direction_misfit_deg": 60.0,
 }
 
+#: Plane-samples evaluated at once when sampling (bounds the temporary arrays to ~100 MB).
+_CHUNK_PLANE_SAMPLES = 250_000
+
 #: Per-plane fields of the JSON/CSV outputs, in order.
 PLANE_FIELDS = (
     "rank", "name", "kind", "feature", "segment", "strike_deg", "dip_deg", "dip_direction_deg",
@@ -914,9 +917,14 @@ def _sample(result: ScreenResult, model, profile, rho_mean, code, phi, az, orien
     planes = result.planes
     if planes["strike_deg"].size:
         stress = sc.principal_tensor_ned(shmax, shmin, sv, azs)          # (N, 3, 3)
-        tend = fl.fault_tendencies(stress[:, None], pp[:, None], planes["strike_deg"],
-                                   planes["dip_deg"], mu[:, None], req.cohesion_mpa)
-        margin = tend["pore_pressure_margin_mpa"]                         # (N, F)
+        n_planes = planes["strike_deg"].size
+        margin = np.empty((n, n_planes))                                  # (N, F)
+        step = max(1, _CHUNK_PLANE_SAMPLES // n_planes)  # bounded memory: chunks of samples
+        for lo in range(0, n, step):
+            sl = slice(lo, lo + step)
+            margin[sl] = fl.fault_tendencies(
+                stress[sl, None], pp[sl, None], planes["strike_deg"], planes["dip_deg"],
+                mu[sl, None], req.cohesion_mpa)["pore_pressure_margin_mpa"]
         p = np.percentile(margin, pct, axis=0)
         planes["pore_pressure_margin_p05_mpa"] = p[0]
         planes["pore_pressure_margin_p50_mpa"] = p[1]

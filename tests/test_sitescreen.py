@@ -128,3 +128,13 @@ def test_indicator_derived_spread_without_a_model():
     assert_allclose(info["sigma_deg"], expected, rtol=1e-6)
     assert "30 indicators within 300 km" in info["source"]
     assert doc["uncertainty"]["azimuth_sigma_deg"] == info["sigma_deg"]
+
+
+def test_sampling_in_chunks_equals_one_pass(monkeypatch):
+    import stressmap.sitescreen as ss
+
+    body = dict(regime="strike-slip", planes=["040/60", "130/80", "010/90"],
+                uncertainty={"samples": 50, "seed": 1, "friction_range": [0.5, 0.7]})
+    whole = run(**body)
+    monkeypatch.setattr(ss, "_CHUNK_PLANE_SAMPLES", 7)   # 2 samples per chunk
+    assert run(**body)["planes"] == whole["planes"]
