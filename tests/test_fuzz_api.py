@@ -23,6 +23,8 @@ called per operation, because the plugin's fixture loader does not run under pyt
 
 from __future__ import annotations
 
+import re
+
 import pytest
 
 schemathesis = pytest.importorskip("schemathesis")
@@ -47,6 +49,7 @@ from schemathesis.generation.hypothesis.builder import (  # noqa: E402
 from stressmap_api.openapi_doc import openapi_document  # noqa: E402
 
 FUZZ_EXAMPLES = 10
+LEAKS = re.compile(r"Traceback|site-packages|/work/|/tmp/|/root/|/home/|\.py\b|File \"")
 TOKEN = "fuzz-token"
 CHECKS = [not_a_server_error, status_code_conformance, content_type_conformance,
           response_headers_conformance, response_schema_conformance, negative_data_rejection]
@@ -118,6 +121,8 @@ def test_operation_fuzz(fuzz_target, method, path):
         response = case.call(headers=headers)
         codes.append(response.status_code)
         case.validate_response(response, checks=CHECKS, headers=headers)
+        if response.status_code >= 400:  # no trace, no server path in any error (OWASP)
+            assert not LEAKS.search(response.text), response.text[:500]
 
     test = create_test(operation=operation, test_func=run, config=HypothesisTestConfig(
         project=schema.config,
