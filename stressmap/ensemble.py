@@ -357,6 +357,7 @@ def chunk_statistics(unit, weights, percentiles=DEFAULT_PERCENTILES, member_chun
     m_total = weights.shape[0]
     u = np.ascontiguousarray(unit.transpose(1, 2, 0)).reshape(p * 3, g)
     step = max(1, min(int(member_chunk), m_total))
+    w_t = np.ascontiguousarray(weights.T)  # (G, M): member slices are contiguous rows
     if work is None or work["shmax"].shape[0] < p or work["shmax"].shape[1] != m_total \
             or work["x"].shape[1] < step:
         work = workspace(p, m_total, step)
@@ -369,11 +370,10 @@ def chunk_statistics(unit, weights, percentiles=DEFAULT_PERCENTILES, member_chun
     aphi_sum = np.zeros(p)
     n_reg = np.zeros(p)
     for m0 in range(0, m_total, step):
-        w = weights[m0:m0 + step]
-        m = w.shape[0]
+        m = min(step, m_total - m0)
         cols = slice(m0, m0 + m)
         # einsum with an output buffer beats BLAS for this thin inner dimension (G ~ 5)
-        x = np.einsum("ng,gm->nm", u, w.T, out=work["x"][:p * 3, :m]).reshape(p, 3, m)
+        x = np.einsum("ng,gm->nm", u, w_t[:, cols], out=work["x"][:p * 3, :m]).reshape(p, 3, m)
         see, snn, sen = x[:, 0], x[:, 1], x[:, 2]
         d = np.subtract(snn, see, out=work["d"][:p, :m])
         r = np.multiply(d, d, out=work["r"][:p, :m])
@@ -438,10 +438,29 @@ def chunk_statistics(unit, weights, percentiles=DEFAULT_PERCENTILES, member_chun
         "prob_strike_slip": prob[:, 1],
         "prob_reverse": prob[:, 2],
         "regime_index": aphi_mean,
-        # the work arrays are scratch: partition them in place
-        "s_hmax_mpa": np.percentile(shmax, q, axis=1, overwrite_input=True).T.copy(),
-        "s_hmin_mpa": np.percentile(shmin, q, axis=1, overwrite_input=True).T.copy(),
+        "s_hmax_mpa": _sorted_percentiles(shmax, q),
+        "s_hmin_mpa": _sorted_percentiles(shmin, q),
     }
+
+
+def _sorted_percentiles(values, q):
+    """Percentiles (numpy's default linear interpolation) along axis 1, sorting ``values`` in
+    place: a full SIMD sort of each row is several times faster than a multi-index partition.
+
+    Examples
+    --------
+    >>> _sorted_percentiles(np.array([[3.0, 1.0, 2.0, 4.0]]), np.array([0.0, 50.0, 100.0]))
+    array([[1. , 2.5, 4. ]])
+    """
+    values.sort(axis=1)
+    m = values.shape[1]
+    h = (m - 1) * np.asarray(q, dtype=float) / 100.0
+    lo = np.floor(h).astype(np.intp)
+    hi = np.minimum(lo + 1, m - 1)
+    t = h - lo
+    a, b = values[:, lo], values[:, hi]
+    # numpy's lerp: a + (b - a) t, evaluated from the nearer end for t >= 0.5
+    return np.where(t >= 0.5, b - (b - a) * (1.0 - t), a + (b - a) * t)
 
 
 def plan_chunks(n_points, members, groups, memory_mb=256.0, member_chunk=256):
