@@ -389,3 +389,23 @@ def test_corpus_generator_is_reproducible(tmp_path):
     mod.main()
     for case in CASES:
         assert (tmp_path / case.file).read_bytes() == (CORPUS / case.file).read_bytes(), case.file
+
+
+@pytest.mark.parametrize("request_args", [
+    ("POST", "/predict", {"points": [[180.0, 90.0], [-180.0, -90.0], [0.0, 90.0], [360.0, 0.0],
+                                     [-360.0, 0.0]]}),
+    ("POST", "/predict", {"region": {"bbox": [170, -10, -170, 10], "spacing_km": 200}}),
+    ("POST", "/predict", {"region": {"bbox": [-180, 80, 180, 90], "spacing_km": 500}}),
+    ("GET", "/field?bbox=179,-89,-179,89&spacing_km=1000", None),
+], ids=["poles-and-wrapped-longitudes", "bbox-across-antimeridian", "polar-cap", "field-antimeridian"])
+def test_valid_requests_at_poles_and_antimeridian_are_answered(service, request_args):
+    """Edge geometry that is valid (poles, longitudes of +-180/360, boxes across the
+    antimeridian) is answered with 200 and points outside the plate flagged, never a 5xx."""
+    app, model_id = service
+    method, suffix, body = request_args
+    resp = app.test_client().open(f"/api/v1/models/{model_id}{suffix}", method=method, json=body)
+    assert resp.status_code == 200, resp.get_data(as_text=True)[:500]
+    fc = resp.get_json()
+    assert fc["type"] == "FeatureCollection"
+    if suffix == "/predict" and "points" in body:
+        assert [f["properties"]["inside"] for f in fc["features"]] == [False] * 5
