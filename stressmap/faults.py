@@ -47,6 +47,7 @@ __all__ = [
     "coulomb_failure_stress_mpa",
     "pore_pressure_margin_mpa",
     "fault_tendencies",
+    "tractions_vertical_principal",
     "rank_order",
     "optimal_planes",
     "segment_azimuth_deg",
@@ -243,6 +244,39 @@ def fault_tendencies(stress_ned, pp_mpa, strike_deg, dip_deg, friction=0.6, cohe
         "pore_pressure_margin_mpa": pore_pressure_margin_mpa(sn, tau, pp, friction, cohesion_mpa),
         "rake_deg": rake,
     }
+
+
+def tractions_vertical_principal(s_nn, s_ee, s_ne, s_dd, normal):
+    """Normal and shear traction for tensors with a vertical principal axis (Anderson states).
+
+    A cheaper path than :func:`resolve_traction` for many samples x many planes: with
+    ``S = [[s_nn, s_ne, 0], [s_ne, s_ee, 0], [0, 0, s_dd]]`` in (N, E, D),
+    ``sigma_n = n.S.n`` and ``tau^2 = |S n|^2 - sigma_n^2`` are formed directly on the broadcast
+    shape without (..., 3) temporaries.
+
+    Parameters
+    ----------
+    s_nn, s_ee, s_ne, s_dd : array_like
+        Tensor components (e.g. shape (N, 1) for N samples).
+    normal : array_like, shape (F, 3)
+        Unit plane normals.
+
+    Examples
+    --------
+    >>> sn, tau = tractions_vertical_principal(3.0, 1.0, 0.0, 2.0, np.array([[1.0, 1.0, 0.0]]) /
+    ...                                        np.sqrt(2))
+    >>> round(float(sn[0]), 12), round(float(tau[0]), 12)
+    (2.0, 1.0)
+    """
+    normal = _f(normal)
+    nx, ny, nz = normal[..., 0], normal[..., 1], normal[..., 2]
+    a, b, c, v = _f(s_nn), _f(s_ee), _f(s_ne), _f(s_dd)
+    tx = a * nx + c * ny
+    ty = c * nx + b * ny
+    tz = v * nz
+    sn = tx * nx + ty * ny + tz * nz
+    tau = np.sqrt(np.maximum(tx * tx + ty * ty + tz * tz - sn * sn, 0.0))
+    return sn, tau
 
 
 def rank_order(margin_mpa):

@@ -917,14 +917,17 @@ def _sample(result: ScreenResult, model, profile, rho_mean, code, phi, az, orien
     planes = result.planes
     if planes["strike_deg"].size:
         stress = sc.principal_tensor_ned(shmax, shmin, sv, azs)          # (N, 3, 3)
+        normal, _, _ = fl.plane_vectors_ned(planes["strike_deg"], planes["dip_deg"])
         n_planes = planes["strike_deg"].size
         margin = np.empty((n, n_planes))                                  # (N, F)
         step = max(1, _CHUNK_PLANE_SAMPLES // n_planes)  # bounded memory: chunks of samples
         for lo in range(0, n, step):
             sl = slice(lo, lo + step)
-            margin[sl] = fl.fault_tendencies(
-                stress[sl, None], pp[sl, None], planes["strike_deg"], planes["dip_deg"],
-                mu[sl, None], req.cohesion_mpa)["pore_pressure_margin_mpa"]
+            part = stress[sl, None]                                      # (n, 1, 3, 3)
+            sn, tau = fl.tractions_vertical_principal(part[..., 0, 0], part[..., 1, 1],
+                                                      part[..., 0, 1], part[..., 2, 2], normal)
+            margin[sl] = fl.pore_pressure_margin_mpa(sn, tau, pp[sl, None], mu[sl, None],
+                                                     req.cohesion_mpa)
         p = np.percentile(margin, pct, axis=0)
         planes["pore_pressure_margin_p05_mpa"] = p[0]
         planes["pore_pressure_margin_p50_mpa"] = p[1]

@@ -198,3 +198,17 @@ def test_validate_planes_reports_rows():
         fl.validate_planes([10.0, np.nan, 30.0], [30.0, 40.0, -5.0])
     rows = {(p["field"], p["row"]) for p in err.value.problems}
     assert rows == {("planes.strike_deg", 2), ("planes.dip_deg", 3)}
+
+
+def test_vertical_principal_shortcut_equals_full_resolution():
+    rng = np.random.default_rng(9)
+    n, f = 40, 25
+    s = sc.principal_tensor_ned(rng.uniform(60, 120, n), rng.uniform(30, 60, n),
+                                rng.uniform(50, 90, n), rng.uniform(0, 180, n))[:, None]
+    strike, dip = rng.uniform(0, 360, f), rng.uniform(0, 90, f)
+    normal, _, _ = fl.plane_vectors_ned(strike, dip)
+    sn, tau = fl.tractions_vertical_principal(s[..., 0, 0], s[..., 1, 1], s[..., 0, 1],
+                                              s[..., 2, 2], normal)
+    full_sn, full_tau, _ = fl.resolve_traction(s, normal)
+    assert_allclose(sn, full_sn, atol=1e-10)
+    assert_allclose(tau, full_tau, atol=1e-6)
