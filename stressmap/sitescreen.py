@@ -12,9 +12,11 @@ collects every problem with its field name). :func:`screen` then
    traces -- and ranks them by the pore-pressure increase that would bring them to failure
    (:mod:`stressmap.faults`);
 4. optionally samples the uncertain inputs (friction, pore pressure, overburden density, and the
-   orientation: the members of a model ensemble when ``stressmap.ensemble`` is asked for,
-   otherwise a normal spread of the SHmax azimuth of a given standard deviation) and reports
-   percentiles of each plane's margin and the probability that it falls below a threshold.
+   orientation: the members of a model ensemble (``stressmap.ensemble``) when ensemble members
+   or load-group distributions are given, otherwise a normal spread of the SHmax azimuth whose
+   standard deviation is user-given, derived from stress indicators near the site
+   (:func:`indicator_spread_deg`) or 15 degrees by default) and reports percentiles of each
+   plane's margin and the probability that it falls below a threshold.
 
 Results serialise to JSON (:func:`result_json`), GeoJSON (:func:`result_geojson`) and CSV
 (:func:`result_csv`); each carries :data:`stressmap.constants.CAUTION`.
