@@ -182,7 +182,10 @@ class Store:
             self.models_dir.mkdir(parents=True, exist_ok=True)
             self.jobs_dir.mkdir(parents=True, exist_ok=True)
         except OSError as exc:
-            raise StorageError(f"cannot create the data directory {self.data_dir}: {exc}") from exc
+            # Named relative to the data directory: reasons reach clients (GET /jobs, /models).
+            where = Path(exc.filename).name if getattr(exc, "filename", None) else "data directory"
+            raise StorageError(f"cannot create the data directory's {where!r} folder: "
+                               f"{exc.strerror or type(exc).__name__}") from exc
         self._factory = connection_factory
         self._cache: OrderedDict = OrderedDict()
         self._cache_size = max(int(cache_size), 0)
