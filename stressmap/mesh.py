@@ -9,8 +9,9 @@ refinement items or ring arcs):
    so the mesh on the sphere has the requested size everywhere.
 2. **Size function** (km on the sphere): ``mesh.edge_km`` everywhere, finer near each refinement
    point (within ``radius_km``) or polygon, growing by ``mesh.grading`` km per km away from it;
-   also finer near ring vertices whose adjacent arcs are shorter than the target size, so short
-   boundary arcs get well-shaped neighbours.
+   also finer near ring vertices whose adjacent arcs are shorter than the target size, where two
+   parts of the ring face each other closer than the target size (narrow necks, inlets,
+   spikes), and towards sharp corners (in proportion to the wedge width).
 3. **Boundary nodes.** Every ring vertex is a node; nodes are added along each great-circle arc
    so that their spacing follows the size function (equal steps of the integral of 1/size).
 4. **Interior nodes.** Equilateral (hexagonal) lattices whose spacing steps by a factor 0.85
@@ -461,7 +462,6 @@ def _encroached(bxy, pts):
     b = np.roll(bxy, -1, axis=0)
     mid = 0.5 * (a + b)
     rad = 0.5 * np.linalg.norm(b - a, axis=1)
-    rmax = rad.max()
     drop = np.zeros(len(pts), dtype=bool)
     if len(pts):
         tree = cKDTree(pts)
@@ -480,7 +480,6 @@ def _encroached(bxy, pts):
         q = np.concatenate([np.asarray(v, dtype=np.int64) for v in lists if v])
         own = (q == e) | (q == (e + 1) % nb)
         bad[np.unique(e[~own])] = True
-    del rmax
     return np.flatnonzero(bad), drop
 
 
@@ -492,11 +491,6 @@ def _delaunay_inside(p, poly):
     c = p[tri].mean(axis=1)
     inside = shapely.contains_xy(poly, c[:, 0], c[:, 1])
     return tri[inside]
-
-
-def _plane_areas(p, tri):
-    a, b, c = p[tri[:, 0]], p[tri[:, 1]], p[tri[:, 2]]
-    return 0.5 * ((b[:, 0] - a[:, 0]) * (c[:, 1] - a[:, 1]) - (b[:, 1] - a[:, 1]) * (c[:, 0] - a[:, 0]))
 
 
 def _edges(tri):
