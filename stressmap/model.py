@@ -138,7 +138,13 @@ def _segment_loads(plate, mesh, groups):
 
 
 def _node_ages_myr(plate, mesh, xyz_unit, sheet):
-    """Lithosphere age (Myr) at nodes and the ridge group index of each node (nearest ridge)."""
+    """Lithosphere age (Myr) at nodes and the segment of the nearest ridge of each node.
+
+    Sources (``ridge_push.age_source``): ``ridge_distance`` (great-circle distance to the
+    nearest ridge over its half spreading rate; 1 mm/yr = 1 km/Myr), ``provinces`` (area-weighted
+    average of the ages of the adjacent oceanic-province elements) or ``grid`` (bilinear
+    interpolation of a netCDF age grid). With provinces or a grid, nodes on the ridge get age 0.
+    """
     from scipy.spatial import cKDTree
 
     ridge_segs = [s for s in plate.segments if s.kind == "ridge"]
@@ -164,7 +170,9 @@ def _node_ages_myr(plate, mesh, xyz_unit, sheet):
     elif source == "provinces":
         prov_age = np.array([np.nan if p.age_myr is None else float(p.age_myr)
                              for p in plate.provinces] + [np.nan])
-        elem_age = prov_age[mesh.element_province]  # -1 -> the trailing NaN
+        oceanic = np.array([p.lithosphere == "oceanic" for p in plate.provinces] + [False])
+        elem_age = np.where(oceanic[mesh.element_province],
+                            prov_age[mesh.element_province], np.nan)  # -1 -> trailing NaN
         w = np.where(np.isfinite(elem_age), sheet.area, 0.0)
         num = np.zeros(mesh.n_nodes)
         den = np.zeros(mesh.n_nodes)
@@ -174,6 +182,8 @@ def _node_ages_myr(plate, mesh, xyz_unit, sheet):
             age = np.where(den > 0, num / den, np.nan)
     else:
         age = _age_grid_at(plate.ridge_push, mesh.lonlat[:, 0], mesh.lonlat[:, 1])
+    if source != "ridge_distance":
+        age[edges.reshape(-1)] = 0.0  # lithosphere is new at the ridge by definition
     return age, nearest_seg
 
 

@@ -297,3 +297,31 @@ def test_azimuths_converge_under_mesh_refinement(demo):
     assert probe.sum() > 50
     diff = (a["shmax_azimuth_deg"].values - b["shmax_azimuth_deg"].values + 90.0) % 180.0 - 90.0
     assert np.abs(diff[probe]).max() < 1.0
+
+
+@pytest.mark.parametrize("source", ["grid", "provinces"])
+def test_distributed_ridge_push_from_an_age_grid_or_province_ages(tmp_path, source):
+    import xarray as xr
+
+    doc = demo_document()
+    rp = {"mode": "distributed", "age_source": source}
+    if source == "grid":
+        # a fictional age grid: 0 Myr along the demo ridges near 0-10 E, older westward at
+        # 22 mm/yr (1 Myr per 22 km)
+        lon = np.arange(-45.0, 20.0, 0.5)
+        lat = np.arange(-45.0, 10.0, 0.5)
+        ridge_lon = 2.0 + 0.2 * (lat + 35.0)
+        age = np.clip((ridge_lon[:, None] - lon[None, :]) * 111.19 * np.cos(np.radians(lat))[:, None]
+                      / 22.0, 0.0, None)
+        path = tmp_path / "age.nc"
+        xr.Dataset({"age": (("lat", "lon"), age)}, coords={"lat": lat, "lon": lon}).to_netcdf(path)
+        rp.update({"age_grid": str(path), "age_variable": "age"})
+    doc["ridge_push"] = rp
+    built = model.build_model(doc)
+    k = built.groups.index("ridge")
+    inside, u = model.unit_stress_at(built, [-5.0], [-20.0])
+    assert inside[0] and np.all(np.isfinite(u))
+    ridge = next(g for g in built.summary["groups"] if g["name"] == "ridge")
+    assert ridge["torque_before_n_m"] > 0
+    assert ridge["torque_after_n_m"] < 1e-9 * ridge["torque_before_n_m"]
+    assert u[k, 0, 0] + u[k, 0, 1] > 0  # compression in the oceanic interior
