@@ -284,6 +284,22 @@ def build_model(document: dict, progress=None) -> BuiltModel:
     ------
     ModelValidationError
         With one problem per defect of the document.
+
+    Examples
+    --------
+    The fictional demo plate: one unit field per load group, then predictions at any weights.
+
+    >>> import json
+    >>> from importlib import resources
+    >>> text = resources.files("stressmap.data").joinpath("demo_plate.json").read_text()
+    >>> built = build_model(json.loads(text))
+    >>> sorted(built.groups)
+    ['collision', 'overriding', 'ridge', 'subduction', 'transform']
+    >>> ds = predict_points(built, [-15.0, 60.0], [-20.0, 0.0], weights={"ridge": 2.0})
+    >>> ds["inside"].values.tolist(), ds["regime"].values[1]
+    ([True, False], '')
+    >>> bool(0.0 <= ds["shmax_azimuth_deg"].values[0] < 180.0)
+    True
     """
     import xarray as xr
 
