@@ -557,7 +557,7 @@ def locate(model: BuiltModel, lon, lat):
     weights = np.full((p, 3), np.nan)
     todo = np.arange(p)
     m = tri.shape[0]
-    for k in (8, 32, 128):  # widen the candidate set only for the few points not yet found
+    for k in (1, 8, 32, 128):  # widen the candidate set only for the points not yet found
         if todo.size == 0:
             break
         kk = min(k, m)
@@ -566,9 +566,12 @@ def locate(model: BuiltModel, lon, lat):
         cand = cand.reshape(todo.size, kk)
         valid = np.isfinite(dist)
         cand_safe = np.where(valid, cand, 0)
-        lam = np.einsum("pkij,pj->pki", inv[cand_safe], q[todo])  # (P, k, 3)
-        total = lam.sum(axis=2)
-        ok = valid & (lam.min(axis=2) >= -1e-12 * np.abs(lam).max(axis=2)) & (total > 0)
+        qt = q[todo]
+        lam = np.einsum("pkij,pj->pki", inv[cand_safe], qt)  # (P, k, 3)
+        l0, l1, l2 = lam[..., 0], lam[..., 1], lam[..., 2]
+        tol = -1e-12 * (np.abs(l0) + np.abs(l1) + np.abs(l2))
+        total = l0 + l1 + l2
+        ok = valid & (l0 >= tol) & (l1 >= tol) & (l2 >= tol) & (total > 0)
         found = ok.any(axis=1)
         first = np.argmax(ok, axis=1)
         rows = np.flatnonzero(found)
