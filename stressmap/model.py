@@ -259,14 +259,10 @@ def _ridge_body_forces(plate, mesh, sheet, xyz_unit, groups):
 
 def _load_groups(plate):
     """Groups that carry a load, in order of first appearance."""
-    distributed = plate.ridge_push.get("mode") == "distributed"
     out = []
     for s in plate.segments:
-        if s.kind in ("free", "fixed"):
-            continue
-        if s.group not in out:
+        if s.kind not in ("free", "fixed") and s.group not in out:
             out.append(s.group)
-    del distributed
     return out
 
 
