@@ -363,3 +363,41 @@ def test_index_that_cannot_be_opened_for_writing_gives_a_problem(app_with_models
     assert [m["id"] for m in client.get("/api/v1/models").get_json()["models"]] == ids[::-1]
     assert sorted(p.name for p in (data_dir / "models").iterdir()) == sorted(ids)
     assert integrity(data_dir) == ["ok"]
+
+
+def test_read_only_data_directory(app_with_models, monkeypatch):
+    """A read-only data directory, simulated where root would still write: the index opened
+    read-only (SQLite URI ``mode=ro``, SQLite docs "URI filenames") and file renames failing with
+    EROFS. Reads and predictions go on; creating and deleting answer 503 problems that say the
+    store is read-only; nothing changes on disk."""
+    import sqlite3 as sqlite3_module
+
+    from stressmap_api import store as store_module
+
+    app, data_dir, ids = app_with_models
+    client = app.test_client()
+    before = _predictions(app, ids)
+    real_connect = sqlite3_module.connect
+
+    def read_only(path, *args, **kwargs):
+        return real_connect(f"file:{path}?mode=ro", *args, uri=True, **kwargs)
+
+    def no_rename(*args, **kwargs):
+        raise OSError(errno.EROFS, os.strerror(errno.EROFS))
+
+    monkeypatch.setattr(store_module.sqlite3, "connect", read_only)
+    monkeypatch.setattr(store_module.os, "replace", no_rename)
+    listing = client.get("/api/v1/models").get_json()
+    for resp in (client.post("/api/v1/models", json=coarse_demo_document(250.0)),
+                 client.delete(f"/api/v1/models/{ids[0]}")):
+        assert resp.status_code == 503, resp.get_data(as_text=True)
+        assert resp.content_type == "application/problem+json"
+        assert "readonly database" in resp.get_json()["detail"]
+        assert str(data_dir) not in resp.get_data(as_text=True)
+    assert client.get("/api/v1/models").get_json() == listing
+    app.extensions["stressmap_store"]._cache.clear()
+    assert _predictions(app, ids) == before  # reads work on a read-only store
+    monkeypatch.undo()
+    assert client.get("/api/v1/models").get_json() == listing
+    assert sorted(p.name for p in (data_dir / "models").iterdir()) == sorted(ids)
+    assert integrity(data_dir) == ["ok"]
