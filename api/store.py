@@ -188,6 +188,7 @@ class Store:
                                f"{exc.strerror or type(exc).__name__}") from exc
         self._factory = connection_factory
         self._cache: OrderedDict = OrderedDict()
+        self._ready_meta: dict = {}  # index entries of the cached (ready) models
         self._cache_size = max(int(cache_size), 0)
         self._lock = threading.Lock()
         with self._connection() as con:
@@ -230,6 +231,9 @@ class Store:
         return model_id
 
     def set_model_status(self, model_id: str, status: str, error: str | None = None) -> None:
+        with self._lock:
+            self._cache.pop(model_id, None)
+            self._ready_meta.pop(model_id, None)
         self._execute("UPDATE models SET status=?, error=? WHERE id=?",
                       (status, error, check_id(model_id)))
 
@@ -278,8 +282,15 @@ class Store:
     def meta(self, model_id: str, with_summary: bool = False) -> dict:
         """Index entry of a model (id, name, status, created, build_time, job_id[, summary]).
 
-        Raises :class:`NotFoundError` for an unknown or malformed id.
+        Raises :class:`NotFoundError` for an unknown or malformed id. The entry of a ready model
+        held in the model cache is answered from memory (a ready entry only changes by deletion,
+        which drops it), so a prediction needs no index query.
         """
+        if not with_summary:
+            with self._lock:
+                cached = self._ready_meta.get(model_id)
+            if cached is not None:
+                return dict(cached)
         rows = self._execute(self._META_SQL + " WHERE m.id = ?", (check_id(model_id),))
         if not rows:
             raise NotFoundError(f"no model with id {model_id!r}")
@@ -331,9 +342,11 @@ class Store:
         if self._cache_size:
             with self._lock:
                 self._cache[model_id] = model
+                self._ready_meta[model_id] = dict(meta)
                 self._cache.move_to_end(model_id)
                 while len(self._cache) > self._cache_size:
-                    self._cache.popitem(last=False)
+                    dropped, _ = self._cache.popitem(last=False)
+                    self._ready_meta.pop(dropped, None)
         return model
 
     def delete_model(self, model_id: str) -> None:
@@ -343,6 +356,7 @@ class Store:
             raise ModelNotReady(model_id, meta["status"])
         with self._lock:
             self._cache.pop(model_id, None)
+            self._ready_meta.pop(model_id, None)
         self._execute("DELETE FROM models WHERE id=?", (model_id,))
         directory = self.models_dir / model_id
         if directory.exists():
