@@ -43,10 +43,11 @@ def records(ds, dim: str = "point") -> tuple[np.ndarray, np.ndarray, list[str], 
     """Flatten a point Dataset (or a grid, stacked) into lon, lat and per-variable 1-D arrays."""
     if dim not in ds.dims:
         ds = ds.stack({dim: list(ds.dims)})
-    lon = np.asarray(ds["lon"].values, dtype=float).ravel()
-    lat = np.asarray(ds["lat"].values, dtype=float).ravel()
-    names = [str(v) for v in ds.data_vars if v not in ("lon", "lat") and ds[v].dims == (dim,)]
-    cols = [np.asarray(ds[v].values).ravel() for v in names]
+    var = ds.variables  # the Variables themselves: ds[name] builds a DataArray each time
+    lon = np.asarray(var["lon"].values, dtype=float).ravel()
+    lat = np.asarray(var["lat"].values, dtype=float).ravel()
+    names = [str(v) for v in ds.data_vars if v not in ("lon", "lat") and var[v].dims == (dim,)]
+    cols = [np.asarray(var[v].values).ravel() for v in names]
     return lon, lat, names, cols
 
 
