@@ -9,9 +9,9 @@ refinement items or ring arcs):
    so the mesh on the sphere has the requested size everywhere.
 2. **Size function** (km on the sphere): ``mesh.edge_km`` everywhere, finer near each refinement
    point (within ``radius_km``) or polygon, growing by ``mesh.grading`` km per km away from it;
-   also finer near ring vertices whose adjacent arcs are shorter than the target size, where two
-   parts of the ring face each other closer than the target size (narrow necks, inlets,
-   spikes), and towards sharp corners (in proportion to the wedge width).
+   also finer near ring vertices whose adjacent arcs are shorter than the target size and where
+   two parts of the ring face each other closer than the target size (narrow necks, inlets,
+   and the two sides of a spike or slit near its tip, so sharp corners are graded too).
 3. **Boundary nodes.** Every ring vertex is a node; nodes are added along each great-circle arc
    so that their spacing follows the size function (equal steps of the integral of 1/size).
 4. **Interior nodes.** Equilateral (hexagonal) lattices whose spacing steps by a factor 0.85
@@ -207,24 +207,15 @@ class _Size:
                     poly = poly.buffer(buf)
                 shapely.prepare(poly)
                 self.polygons.append((poly, fine))
-        # ring vertices next to short arcs (local feature size) and at sharp corners (the
-        # size shrinks towards the corner in proportion to the wedge width 2 d sin(angle/2))
+        # ring vertices next to short arcs (local feature size), and places where two parts of
+        # the ring face each other (narrow necks and inlets; also the two sides of a spike or a
+        # slit near its tip, so sharp corners are graded without sources of their own)
         arc = _R * sphere.angle_between(ring_xyz, np.roll(ring_xyz, -1, axis=0))
         lfs = np.minimum(arc, np.roll(arc, 1))
-        # a spike (small interior angle) or the tip of a slit (small exterior angle)
-        corner = np.radians(_sharpness_deg(ring_xyz))
-        sharp = corner < np.radians(SHARP_CORNER_DEG)
-        wedge = 2.0 * np.sin(np.minimum(corner, np.pi / 2) / 2.0)
-        fine = np.where(sharp, np.minimum(lfs, self.edge * np.maximum(wedge / 2.0, 0.02)), lfs)
-        slope = np.where(sharp, np.minimum(wedge, self.grading), self.grading)
-        use = (fine < self.edge) & ~sharp
+        use = lfs < self.edge
         nx, nfine = _narrow_places(ring_xyz, self.edge)
-        # sources graded at the document's rate (short arcs, narrow places): k-d tree
         self.vertex_xyz = np.concatenate([ring_xyz[use], nx])
-        self.vertex_fine = np.maximum(np.concatenate([fine[use], nfine]), 1e-3)
-        # sharp corners, each with its own (gentler) rate: evaluated one by one (few)
-        self.corners = [(ring_xyz[i], float(max(fine[i], 1e-3)), float(slope[i]))
-                        for i in np.flatnonzero(sharp)]
+        self.vertex_fine = np.maximum(np.concatenate([lfs[use], nfine]), 1e-3)
         self.max_slope = self.grading
         self.tree = None
         self.reach = 0.0
@@ -232,11 +223,10 @@ class _Size:
             from scipy.spatial import cKDTree
 
             self.tree = cKDTree(self.vertex_xyz)
-            # beyond this chord no graded source can go below edge_km
+            # beyond this chord no source can go below edge_km
             arc = (self.edge - float(self.vertex_fine.min())) / self.grading / _R
             self.reach = 2.0 * np.sin(min(arc, np.pi) / 2.0) * (1 + 1e-9)
-        fines = ([self.edge] + [f for _, f, _ in self.points] + [f for _, f in self.polygons]
-                 + [f for _, f, _ in self.corners])
+        fines = [self.edge] + [f for _, f, _ in self.points] + [f for _, f in self.polygons]
         if len(self.vertex_fine):
             fines.append(float(self.vertex_fine.min()))
         self.min_km = min(fines)
@@ -258,20 +248,12 @@ class _Size:
             for poly, fine in self.polygons:
                 d = shapely.distance(poly, pts) / scale
                 np.minimum(h, fine + g * d, out=h)
-        if self.corners:
-            flat = xyz.reshape(-1, 3)
-            hf = h.reshape(-1)
-            for cxyz, fine, slope in self.corners:
-                # only points within the corner's reach (where it can go below edge_km)
-                near = flat @ cxyz > np.cos(min((self.edge - fine) / slope / _R, np.pi))
-                d = _R * sphere.angle_between(flat[near], cxyz)
-                hf[near] = np.minimum(hf[near], fine + slope * d)
-            h = hf.reshape(h.shape)
         if self.tree is not None:
-            # the 32 nearest graded sources within reach (the minimum over them is exact
-            # unless more than 32 sources lie closer than the best one)
+            # the 12 nearest sources within reach (the minimum over them is exact unless more
+            # than 12 sources lie closer than the best one; they are sampled along the ring, so
+            # the nearest ones are also the finest nearby)
             flat = xyz.reshape(-1, 3)
-            k = min(32, len(self.vertex_fine))
+            k = min(12, len(self.vertex_fine))
             chord, idx = self.tree.query(flat, k=k, distance_upper_bound=self.reach)
             chord = chord.reshape(len(flat), -1)
             idx = idx.reshape(len(flat), -1)
