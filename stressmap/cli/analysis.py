@@ -4,10 +4,10 @@ how much the prediction could change across plausible force magnitudes."""
 from __future__ import annotations
 
 import json
-import sys
 from pathlib import Path
 
 from stressmap.errors import InputError, problem
+from stressmap.cli._progress import progress_bar
 
 __all__ = ["register", "parse_bounds", "parse_vary", "parse_percentiles", "load_config"]
 
@@ -124,20 +124,6 @@ def load_config(path: str | None) -> dict:
     return data
 
 
-def _progress_bar(description: str):
-    from tqdm import tqdm
-
-    bar = tqdm(total=100, desc=description, unit="%", file=sys.stderr, leave=False,
-               bar_format="{desc}: {percentage:3.0f}% |{bar}| {postfix}")
-
-    def update(fraction: float, message: str = "") -> None:
-        bar.n = round(100 * max(0.0, min(1.0, float(fraction))))
-        bar.set_postfix_str(message)
-        bar.refresh()
-
-    return bar, update
-
-
 def _read_model(path: str):
     from stressmap.modeldir import read_model
 
@@ -171,7 +157,7 @@ def _cmd_calibrate(args) -> int:
     model = _read_model(args.model_dir)
     indicators = read_indicators(args.indicators, skip_bad=args.skip_bad)
     skipped = indicators.attrs.get("skipped") or []
-    bar, update = _progress_bar("calibrate")
+    bar, update = progress_bar("calibrate")
     try:
         result = calibrate(model, indicators, bounds=bounds, progress=update,
                            **{k: (int(v) if k.startswith("n_") or k == "seed" else v)
@@ -242,7 +228,7 @@ def _cmd_ensemble(args) -> int:
     kwargs = dict(members=args.members, distributions=distributions, seed=seed,
                   percentiles=percentiles, memory_mb=args.memory_mb, workers=args.workers,
                   scheduler=args.scheduler)
-    bar, update = _progress_bar("ensemble")
+    bar, update = progress_bar("ensemble")
     try:
         if args.points:
             from stressmap.points_io import read_points

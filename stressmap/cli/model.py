@@ -3,10 +3,10 @@
 from __future__ import annotations
 
 import json
-import sys
 from pathlib import Path
 
 from stressmap.errors import InputError, problem
+from stressmap.cli._progress import progress_bar
 
 __all__ = ["register", "parse_weights", "parse_bbox", "load_document"]
 
@@ -73,26 +73,12 @@ def load_document(path: str, params: str | None = None) -> dict:
                          [problem(f"not valid JSON: {exc}", field=p.name)]) from None
 
 
-def _progress_bar(description: str):
-    from tqdm import tqdm
-
-    bar = tqdm(total=100, desc=description, unit="%", file=sys.stderr, leave=False,
-               bar_format="{desc}: {percentage:3.0f}% |{bar}| {postfix}")
-
-    def update(fraction: float, message: str = "") -> None:
-        bar.n = round(100 * max(0.0, min(1.0, float(fraction))))
-        bar.set_postfix_str(message)
-        bar.refresh()
-
-    return bar, update
-
-
 def _cmd_build(args) -> int:
     from stressmap.model import build_model
     from stressmap.modeldir import write_model
 
     document = load_document(args.model, args.params)
-    bar, update = _progress_bar("build")
+    bar, update = progress_bar("build")
     try:
         model = build_model(document, progress=update)
     finally:

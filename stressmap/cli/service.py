@@ -9,11 +9,11 @@ import logging
 import math
 import os
 import signal
-import sys
 import tomllib
 from pathlib import Path
 
 from stressmap.errors import InputError, StressmapError, problem
+from stressmap.cli._progress import progress_bar
 
 __all__ = ["register", "load_server_config", "SERVER_DEFAULTS"]
 
@@ -41,20 +41,6 @@ def load_server_config(path: str | None = None) -> dict:
                              [problem(str(exc), field=str(file))]) from None
         cfg.update(data.get("server", data))
     return cfg
-
-
-def _progress_printer(label: str):
-    from tqdm import tqdm
-
-    bar = tqdm(total=100, desc=label, unit="%", file=sys.stderr, leave=False,
-               bar_format="{desc}: {percentage:3.0f}% |{bar}| {postfix}")
-
-    def update(fraction: float, message: str = "") -> None:
-        bar.n = round(100 * max(0.0, min(1.0, float(fraction))))
-        bar.set_postfix_str(message)
-        bar.refresh()
-
-    return bar, update
 
 
 def _cmd_serve(args) -> int:
@@ -85,7 +71,7 @@ def _cmd_serve(args) -> int:
         jobs = get_jobs()
     demo_id = None
     if app.config.get("LOAD_DEMO"):
-        bar, update = _progress_printer("demo model")
+        bar, update = progress_bar("demo model")
         try:
             demo_id = ensure_demo(store, update, int(app.config.get("MAX_MESH_NODES") or 0))
         finally:
@@ -148,7 +134,7 @@ def _cmd_demo(args) -> int:
 
     document = json.loads((resources.files("stressmap.data") / "demo_plate.json")
                           .read_text(encoding="utf-8"))
-    bar, update = _progress_printer("demo model")
+    bar, update = progress_bar("demo model")
     try:
         model = build_model(document, progress=update)
     finally:
