@@ -17,7 +17,7 @@ from pathlib import Path
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-from service_support import coarse_demo_document, wait_for_job
+from service_support import coarse_demo_document, wait_for_job, store_ready_model
 
 from stressmap.errors import NotFoundError
 
@@ -30,7 +30,6 @@ LEAKS = re.compile(r"Traceback|site-packages|/work/|/tmp/|/root/|/home/|/usr/|\.
 @pytest.fixture
 def guarded(tmp_path, coarse_demo_model):
     """An app with a token configured and the coarse fictional demo model stored."""
-    from stressmap.modeldir import write_model
     from stressmap_api import create_app
     from stressmap_api.store import get_store
 
@@ -38,9 +37,7 @@ def guarded(tmp_path, coarse_demo_model):
                       "JOB_EXECUTOR": "thread", "JOB_WORKERS": 1, "LOAD_DEMO": False})
     with app.app_context():
         store = get_store()
-        model_id = store.add_model("Meridia (fictional demo plate)", None)
-        write_model(coarse_demo_model, store.model_dir(model_id))
-        store.mark_model_ready(model_id, coarse_demo_model.summary)
+        model_id = store_ready_model(store, coarse_demo_model)
     yield app, model_id
     app.extensions["stressmap_jobs"].shutdown()
 

@@ -16,6 +16,7 @@ import pytest
 from numpy.testing import assert_allclose
 
 from stressmap import CAUTION
+from service_support import store_ready_model
 
 API = "/api/v1"
 TRUTH = {"collision": 0.5, "subduction": 2.0}
@@ -24,15 +25,12 @@ TRUTH = {"collision": 0.5, "subduction": 2.0}
 @pytest.fixture(scope="module")
 def stored(coarse_demo_model, tmp_path_factory):
     """A data directory holding the coarse demo model as a ready model: (data_dir, model_id)."""
-    from stressmap.modeldir import write_model
     from stressmap_api.store import Store, document_digest
 
     data = tmp_path_factory.mktemp("svc") / "data"
     store = Store(data)
     doc = coarse_demo_model.definition
-    model_id = store.add_model(doc["name"], None, document_digest(doc))
-    write_model(coarse_demo_model, store.model_dir(model_id))
-    store.mark_model_ready(model_id, coarse_demo_model.summary)
+    model_id = store_ready_model(store, coarse_demo_model, document_digest(doc))
     return data, model_id
 
 

@@ -11,6 +11,7 @@ from numpy.testing import assert_allclose
 from stressmap.cli import main
 from stressmap.constants import CAUTION
 from stressmap.indicators_io import indicators_geojson
+from service_support import store_ready_model
 
 API = "/api/v1"
 DATA = Path(__file__).parent / "data"
@@ -21,14 +22,11 @@ BROKEN_CSV = (DATA / "indicators_broken.csv").read_text()
 @pytest.fixture
 def model_id(app, coarse_demo_model):
     """The coarse fictional demo model registered as ready in this app's store."""
-    from stressmap.modeldir import write_model
     from stressmap_api.store import get_store
 
     with app.app_context():
         store = get_store()
-        mid = store.add_model(coarse_demo_model.summary.get("name", "demo"), None)
-        write_model(coarse_demo_model, store.model_dir(mid))
-        store.mark_model_ready(mid, coarse_demo_model.summary)
+        mid = store_ready_model(store, coarse_demo_model)
     return mid
 
 

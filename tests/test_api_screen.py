@@ -11,6 +11,7 @@ from numpy.testing import assert_allclose
 
 from stressmap import CAUTION
 from stressmap.cli import main
+from service_support import store_ready_model
 
 BODY = {"site": [-15.0, -20.0], "depth_km": 3.0, "shmax_azimuth_deg": 40.0, "regime": "normal",
         "planes": ["040/60", {"strike_deg": 130.0, "dip_deg": 80.0, "name": "cross"}]}
@@ -24,14 +25,11 @@ FAULTS = {"type": "FeatureCollection", "features": [
 @pytest.fixture
 def model_id(app, coarse_demo_model):
     """The coarse fictional demo model registered as ready in this app's store."""
-    from stressmap.modeldir import write_model
     from stressmap_api.store import get_store
 
     with app.app_context():
         store = get_store()
-        mid = store.add_model(coarse_demo_model.summary.get("name", "demo"), None)
-        write_model(coarse_demo_model, store.model_dir(mid))
-        store.mark_model_ready(mid, coarse_demo_model.summary)
+        mid = store_ready_model(store, coarse_demo_model)
     return mid
 
 

@@ -32,7 +32,7 @@ import time
 from pathlib import Path
 
 import pytest
-from service_support import coarse_demo_document, wait_for_job
+from service_support import coarse_demo_document, wait_for_job, store_ready_model
 
 httpx = pytest.importorskip("httpx")
 
@@ -148,16 +148,13 @@ def integrity(data_dir: Path) -> list[str]:
 @pytest.fixture
 def stored(tmp_path, coarse_demo_model):
     """A data directory holding two ready models (the coarse fictional demo, stored twice)."""
-    from stressmap.modeldir import write_model
     from stressmap_api.store import Store
 
     data_dir = tmp_path / "data"
     store = Store(data_dir, cache_size=0)
     ids = []
     for _ in range(2):
-        model_id = store.add_model("Meridia (fictional demo plate)", None)
-        write_model(coarse_demo_model, store.model_dir(model_id))
-        store.mark_model_ready(model_id, coarse_demo_model.summary)
+        model_id = store_ready_model(store, coarse_demo_model)
         ids.append(model_id)
     return data_dir, ids
 

@@ -47,6 +47,7 @@ from schemathesis.generation.hypothesis.builder import (  # noqa: E402
 )
 
 from stressmap_api.openapi_doc import openapi_document  # noqa: E402
+from service_support import store_ready_model
 
 FUZZ_EXAMPLES = 10
 LEAKS = re.compile(r"Traceback|site-packages|/work/|/tmp/|/root/|/home/|\.py\b|File \"")
@@ -61,7 +62,6 @@ OPERATIONS = sorted((method.upper(), path) for path, item in openapi_document()[
 @pytest.fixture(scope="module")
 def fuzz_target(tmp_path_factory, coarse_demo_model):
     """(schema, app, stored model id) for the whole module."""
-    from stressmap.modeldir import write_model
     from stressmap_api import create_app
     from stressmap_api.store import get_store
 
@@ -73,9 +73,7 @@ def fuzz_target(tmp_path_factory, coarse_demo_model):
     })
     with app.app_context():
         store = get_store()
-        model_id = store.add_model("Meridia (fictional demo plate)", None)
-        write_model(coarse_demo_model, store.model_dir(model_id))
-        store.mark_model_ready(model_id, coarse_demo_model.summary)
+        model_id = store_ready_model(store, coarse_demo_model)
     schema = schemathesis.openapi.from_wsgi("/api/v1/openapi.json", app)
     yield schema, app, model_id
     app.extensions["stressmap_jobs"].shutdown()

@@ -30,6 +30,7 @@ from pathlib import Path
 import pytest
 
 from stressmap.errors import InputError
+from service_support import store_ready_model
 
 CORPUS = Path(__file__).resolve().parent / "hostile"
 TIME_LIMIT_S = 5.0
@@ -187,7 +188,6 @@ def test_corpus_is_complete():
 @pytest.fixture(scope="module")
 def service(tmp_path_factory, coarse_demo_model):
     """An app with the coarse fictional demo model stored, and its id."""
-    from stressmap.modeldir import write_model
     from stressmap_api import create_app
     from stressmap_api.store import get_store
 
@@ -196,9 +196,7 @@ def service(tmp_path_factory, coarse_demo_model):
                       "JOB_WORKERS": 1, "LOAD_DEMO": False, "API_TOKEN": ""})
     with app.app_context():
         store = get_store()
-        model_id = store.add_model(coarse_demo_model.summary.get("name", "demo"), None)
-        write_model(coarse_demo_model, store.model_dir(model_id))
-        store.mark_model_ready(model_id, coarse_demo_model.summary)
+        model_id = store_ready_model(store, coarse_demo_model)
     yield app, model_id
     app.extensions["stressmap_jobs"].shutdown()
 
