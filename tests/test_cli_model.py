@@ -168,3 +168,14 @@ def test_build_reports_validation_problems(tmp_path, coarse_doc, capsys):
     err = capsys.readouterr().err
     assert "wormhole" in err
     assert not os.path.exists(tmp_path / "m")
+
+
+@pytest.mark.parametrize("text", ["[" * 100_000 + "]" * 100_000, '{"name": 1' + "0" * 5000 + "}",
+                                  "{not json"])
+def test_build_unreadable_json_is_a_file_problem(tmp_path, capsys, text):
+    # Python's json recurses per nesting level and refuses integers over 4300 digits
+    # (CPython int max_str_digits): both must surface as a file problem, not a traceback.
+    src = tmp_path / "bad.json"
+    src.write_text(text)
+    assert main(["build", str(src), "-o", str(tmp_path / "m")]) == 2
+    assert "not valid JSON" in capsys.readouterr().err

@@ -68,7 +68,7 @@ def load_document(path: str, params: str | None = None) -> dict:
         return load_plate_files(p, params)
     try:
         return json.loads(p.read_text(encoding="utf-8"))
-    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+    except (UnicodeDecodeError, ValueError, RecursionError) as exc:  # also too deep / too long
         raise InputError(f"{p.name} is not valid JSON: {exc}",
                          [problem(f"not valid JSON: {exc}", field=p.name)]) from None
 
