@@ -1,11 +1,11 @@
 """Boundary segments of a built model with the edge forces applied to them, as GeoJSON.
 
 Each segment's line force (N/m) comes from the force laws for its document properties
-(:func:`stressmap.forces.segment_force_n_per_m`, the same call the model build makes), times its
+(:func:`stressmap.physics.forces.segment_force_n_per_m`, the same call the model build makes), times its
 load group's weight. The vector is given at the midpoint of the segment's middle arc, in the
 local (east, north) frame: the normal part along the inward normal (positive pushes into the
 plate), a transform's shear part along the ring direction with the sign its ``sense`` gives
-(:data:`stressmap.loads.SENSES`). With ``ridge_push.mode = "distributed"`` ridge push acts as a
+(:data:`stressmap.fem.loads.SENSES`). With ``ridge_push.mode = "distributed"`` ridge push acts as a
 body force through the oceanic lithosphere, so ridge segments report zero edge force and say so.
 """
 
@@ -20,10 +20,11 @@ __all__ = ["boundary_forces"]
 
 def boundary_forces(model, weights=None) -> dict:
     """A FeatureCollection of LineString features, one per boundary segment (document order)."""
-    from stressmap import forces, sphere
-    from stressmap.loads import SENSES, edge_geometry
+    from stressmap.physics import forces
+    from stressmap.geo import sphere
+    from stressmap.fem.loads import SENSES, edge_geometry
     from stressmap.model import resolve_weights
-    from stressmap.plate import parse_plate
+    from stressmap.model.plate import parse_plate
 
     plate = parse_plate(model.definition)
     w = dict(zip(model.groups, resolve_weights(model, weights).tolist()))

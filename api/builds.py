@@ -66,7 +66,7 @@ def check_document(document, max_mesh_nodes: int) -> dict:
     :class:`~stressmap.errors.ModelValidationError` (every problem of the document) or
     :class:`~stressmap.errors.InputError` when the mesh would exceed ``max_mesh_nodes``.
     """
-    from stressmap.plate import parse_plate
+    from stressmap.model.plate import parse_plate
 
     ridge_push = document.get("ridge_push") if isinstance(document, dict) else None
     if isinstance(ridge_push, dict) and ("age_grid" in ridge_push
@@ -102,7 +102,7 @@ def build_and_store(data_dir: str, model_id: str, document: dict, max_mesh_nodes
     Returns ``{"model_id": ..., "build_time": ...}``.
     """
     from stressmap.model import build_model
-    from stressmap.modeldir import write_model
+    from stressmap.io.modeldir import write_model
 
     store = Store(data_dir, cache_size=0)
     store.set_model_status(model_id, "building")

@@ -39,7 +39,7 @@ def ensure_demo(store: Store, progress=None, max_mesh_nodes: int = 0) -> str:
     if found:
         _log.info("reusing demo model %s", found)
         return found
-    from stressmap.plate import parse_plate
+    from stressmap.model.plate import parse_plate
 
     model_id = store.add_model(parse_plate(document).name, None, digest)
     try:

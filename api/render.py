@@ -2,8 +2,8 @@
 
 Every spatial response carries the caution, the model id and its build time: GeoJSON as
 top-level members, CSV as leading ``# key: value`` lines, netCDF as global attributes, PNG in the
-caption. The serialisers themselves are :mod:`stressmap.export` (one GeoJSON writer for the CLI,
-the Python API and the service) and :func:`stressmap.maps.shmax_map`.
+caption. The serialisers themselves are :mod:`stressmap.formats.export` (one GeoJSON writer for the CLI,
+the Python API and the service) and :func:`stressmap.plot.maps.shmax_map`.
 """
 
 from __future__ import annotations
@@ -58,7 +58,7 @@ def _flatten(ds):
 def render(ds, fmt: str, meta: dict, *, grid: bool, model=None, extra_properties=None,
            stem: str = "stressmap") -> Response:
     """One prediction Dataset as a response in ``fmt`` (geojson, csv, netcdf, png)."""
-    from stressmap import export
+    from stressmap.formats import export
 
     headers = {}
     if fmt == "geojson":
@@ -74,7 +74,7 @@ def render(ds, fmt: str, meta: dict, *, grid: bool, model=None, extra_properties
         body = export.netcdf_bytes(ds, _flat_meta(meta))
         headers["Content-Disposition"] = f'attachment; filename="{stem}.nc"'
     elif fmt == "png":
-        from stressmap.maps import shmax_map
+        from stressmap.plot.maps import shmax_map
         from stressmap.model import plate_outline
 
         lon, lat, az, ri = _flatten(ds)

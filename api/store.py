@@ -4,7 +4,7 @@ Layout of the data directory (config ``DATA_DIR``)::
 
     index.sqlite3        SQLite index of models and jobs (WAL journal, so readers never block)
     models/<id>/         one model directory per ready model, written atomically by
-                         :func:`stressmap.modeldir.write_model` (temporary directory, fsync, rename)
+                         :func:`stressmap.io.modeldir.write_model` (temporary directory, fsync, rename)
     jobs/<id>/           result files of jobs that produce files
 
 A model row exists from the moment a build is accepted (status ``queued``), becomes ``building``
@@ -333,7 +333,7 @@ class Store:
         meta = self.meta(model_id)
         if meta["status"] != "ready":
             raise ModelNotReady(model_id, meta["status"], meta.get("error"))
-        from stressmap.modeldir import read_model
+        from stressmap.io.modeldir import read_model
 
         try:
             model = read_model(self.model_dir(model_id))

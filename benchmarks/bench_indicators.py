@@ -44,11 +44,11 @@ def synthetic_csv(n, rng):
 
 
 def main():
-    from stressmap import focal
-    from stressmap.compare import compare
-    from stressmap.indicators import indicators_from_csv_text
+    from stressmap.geo import focal
+    from stressmap.analyses.compare import compare
+    from stressmap.analyses.indicators import indicators_from_csv_text
     from stressmap.model import build_model
-    from stressmap.observed import observed_grid
+    from stressmap.analyses.observed import observed_grid
 
     rng = np.random.default_rng(0)
     n = 100_000

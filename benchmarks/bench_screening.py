@@ -10,9 +10,9 @@ import time
 
 import numpy as np
 
-from stressmap import faults as fl
-from stressmap import screening as sc
-from stressmap.sitescreen import parse_request, screen
+from stressmap.analyses import faults as fl
+from stressmap.analyses import screening as sc
+from stressmap.analyses.sitescreen import parse_request, screen
 
 
 def _best(fn, repeat=3):

@@ -14,8 +14,8 @@ import time
 
 import numpy as np
 
-from stressmap.calibrate import calibrate_arrays, indicator_kappa
-from stressmap.tensor import shmax_azimuth_deg
+from stressmap.analyses.calibrate import calibrate_arrays, indicator_kappa
+from stressmap.geo.tensor import shmax_azimuth_deg
 
 TARGET_S = 30.0
 

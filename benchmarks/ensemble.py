@@ -52,8 +52,8 @@ def inside_points(model, n, seed=0):
 def child(model_dir: str, n_points: int) -> None:
     import tracemalloc
 
-    from stressmap.ensemble import ensemble_statistics, sample_weights
-    from stressmap.modeldir import read_model
+    from stressmap.analyses.ensemble import ensemble_statistics, sample_weights
+    from stressmap.io.modeldir import read_model
 
     model = read_model(model_dir)
     t0, c0 = time.perf_counter(), time.process_time()
@@ -92,7 +92,7 @@ def main() -> None:
         from importlib import resources
 
         from stressmap.model import build_model
-        from stressmap.modeldir import write_model
+        from stressmap.io.modeldir import write_model
 
         doc = json.loads(resources.files("stressmap.data").joinpath("demo_plate.json")
                          .read_text(encoding="utf-8"))

@@ -12,8 +12,8 @@ import json
 import os
 import time
 
-from stressmap.mesh import mesh_plate
-from stressmap.plate import parse_plate
+from stressmap.fem.mesh import mesh_plate
+from stressmap.model.plate import parse_plate
 
 
 def main(edges=(50.0, 25.0, 10.0), repeats: int = 2) -> None:

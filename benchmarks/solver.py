@@ -56,7 +56,7 @@ def _planar_mesh(n_side):
 
 def _planar_loads(xyz, edges_east):
     """Nodal loads (2n, 5) of five load cases on the east edge (push, shear, and mixes)."""
-    from stressmap import loads
+    from stressmap.fem import loads
 
     out = []
     for push, shear in ((2e12, 0.0), (0.0, 1e12), (1e12, 1e12), (-1e12, 0.5e12), (0.5e12, -1e12)):
@@ -72,7 +72,7 @@ def _east_edges(xyz):
 
 
 def case_planar_ours(n_side):
-    from stressmap import sheet
+    from stressmap.fem import sheet
 
     m, t_mesh = _planar_mesh(n_side)
     xyz = np.c_[m.p.T, np.zeros(m.p.shape[1])]
@@ -146,7 +146,7 @@ def scaled_demo(edge_km, target_km2=1.5e7):
     refinement, uniform ``edge_km``."""
     doc = json.loads(resources.files("stressmap.data").joinpath("demo_plate.json")
                      .read_text(encoding="utf-8"))
-    from stressmap import plate
+    from stressmap.model import plate
 
     area = plate.parse_plate(doc).area_km2
     s = float(np.sqrt(target_km2 / area))

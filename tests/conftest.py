@@ -37,8 +37,8 @@ def coarse_demo_model():
 
 @pytest.fixture(scope="session")
 def coarse_demo_dir(coarse_demo_model, tmp_path_factory):
-    """Directory of the coarse demo model written with stressmap.modeldir.write_model."""
-    from stressmap.modeldir import write_model
+    """Directory of the coarse demo model written with stressmap.io.modeldir.write_model."""
+    from stressmap.io.modeldir import write_model
 
     path = tmp_path_factory.mktemp("coarse-demo") / "model"
     write_model(coarse_demo_model, path)

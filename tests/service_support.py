@@ -34,7 +34,7 @@ def wait_for_job(get, job_url: str, states=("done", "failed"), timeout: float = 
 
 def store_ready_model(store, model, digest: str | None = None) -> str:
     """Register a built model in ``store`` as ready (the end state of a build job); its id."""
-    from stressmap.modeldir import write_model
+    from stressmap.io.modeldir import write_model
 
     model_id = store.add_model(model.summary.get("name") or model.definition["name"], None, digest)
     write_model(model, store.model_dir(model_id))

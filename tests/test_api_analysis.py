@@ -1,6 +1,6 @@
 """HTTP calibration and ensembles on the coarse fictional demo model (thread job executor).
 
-Expected values come from the library path (stressmap.calibrate / stressmap.ensemble), which
+Expected values come from the library path (stressmap.analyses.calibrate / stressmap.analyses.ensemble), which
 tests/test_calibrate.py and tests/test_ensemble.py check against analytic values and scipy; here
 the service must give the same numbers, the documented status codes and problem details, and the
 caution. Result files are read back with independent readers (json, xarray/netCDF4, the PNG
@@ -60,8 +60,8 @@ def indicator_text(coarse_demo_model):
 
 
 def test_calibrate_matches_the_library(svc, indicator_text, coarse_demo_model):
-    from stressmap.calibrate import calibrate
-    from stressmap.indicators import indicators_from_csv_text
+    from stressmap.analyses.calibrate import calibrate
+    from stressmap.analyses.indicators import indicators_from_csv_text
 
     app, client, model_id = svc
     body = {"indicators_csv": indicator_text, "reference": "ridge", "n_bootstrap": 30,
@@ -129,7 +129,7 @@ def _wait(client, url, timeout=120.0):
 
 
 def test_ensemble_job_points_matches_the_library(svc, coarse_demo_model, tmp_path):
-    from stressmap.ensemble import ensemble_points
+    from stressmap.analyses.ensemble import ensemble_points
 
     _, client, model_id = svc
     dist = {"collision": {"distribution": "log-uniform", "low": 0.3, "high": 3.0},

@@ -1,7 +1,7 @@
 """Every error path answers with an RFC 9457 problem document (application/problem+json) and the
 right HTTP status (RFC 9110 status semantics; RFC 6750 for bearer-token challenges): malformed
 JSON, wrong types, unknown model, invalid plate geometry (each validation message of
-stressmap.plate surfaces), too many points, body too large, missing or wrong token, limits,
+stressmap.model.plate surfaces), too many points, body too large, missing or wrong token, limits,
 unexpected failures."""
 
 from __future__ import annotations
@@ -170,7 +170,7 @@ def _bad_documents():
 def test_invalid_plate_documents_are_422_with_every_validation_message(make_client, label,
                                                                        document):
     from stressmap.errors import InputError
-    from stressmap.plate import parse_plate
+    from stressmap.model.plate import parse_plate
 
     body = problem_of(make_client().post(f"{API}/models", json=document), 422)
     with pytest.raises(InputError) as exc:  # the solver issue's own validation ...

@@ -10,7 +10,7 @@ from numpy.testing import assert_allclose
 
 from stressmap.cli import main
 from stressmap.constants import CAUTION
-from stressmap.indicators_io import indicators_geojson
+from stressmap.io.indicators import indicators_geojson
 from service_support import store_ready_model
 
 API = "/api/v1"
@@ -34,7 +34,7 @@ def model_id(app, coarse_demo_model):
 def demo_fc():
     from importlib import resources
 
-    from stressmap.indicators_io import read_table
+    from stressmap.io.indicators import read_table
 
     path = Path(str(resources.files("stressmap.data").joinpath("demo_indicators.csv")))
     table, _ = read_table(path)
@@ -139,8 +139,8 @@ def test_smooth_geojson_and_netcdf(client, demo_fc):
 def test_smooth_matches_core(client):
     import pandas as pd
 
-    from stressmap.indicators import indicators_from_csv_text
-    from stressmap.observed import observed_grid
+    from stressmap.analyses.indicators import indicators_from_csv_text
+    from stressmap.analyses.observed import observed_grid
 
     body = {"indicators_csv": SMALL_CSV, "bbox": [9, 44, 15, 47], "radius_km": 300, "min_count": 2,
             "max_dispersion_deg": 60}

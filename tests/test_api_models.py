@@ -46,7 +46,7 @@ def svc(built):
 
 @pytest.fixture(scope="module")
 def library_model(built):
-    from stressmap.modeldir import read_model
+    from stressmap.io.modeldir import read_model
 
     return read_model(built[0] / "models" / built[1])
 

@@ -1,4 +1,4 @@
-"""Calibration of load-group weights (stressmap.calibrate).
+"""Calibration of load-group weights (stressmap.analyses.calibrate).
 
 The core is checked on synthetic unit fields: random (G, N, 3) arrays are valid unit solutions for
 the combination algebra (any linear sheet gives stress = sum_g w_g U_g), so indicators generated
@@ -20,7 +20,7 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy.optimize import approx_fprime, brute
 
-from stressmap.calibrate import (
+from stressmap.analyses.calibrate import (
     axial_terms,
     calibrate_arrays,
     fit_weights,
@@ -29,7 +29,7 @@ from stressmap.calibrate import (
     misfit_objective,
 )
 from stressmap.errors import InputError
-from stressmap.tensor import shmax_azimuth_deg
+from stressmap.geo.tensor import shmax_azimuth_deg
 
 
 def synthetic(weights, n, noise_deg, seed):
@@ -211,7 +211,7 @@ def test_model_calibration_recovers_known_weights(coarse_demo_model):
     # .predict_points) plus 8-degree normal noise, with sigma 8 in the table.
     import geopandas as gpd
 
-    from stressmap.calibrate import calibrate
+    from stressmap.analyses.calibrate import calibrate
     from stressmap.model import predict_points
 
     m = coarse_demo_model
@@ -242,7 +242,7 @@ def test_batched_solver_agrees_with_scipy_lbfgsb():
     # reach the same minima as scipy.optimize.minimize(L-BFGS-B) started from the same points.
     from scipy.optimize import minimize
 
-    from stressmap.calibrate import _batched_fit, _polish, _problem
+    from stressmap.analyses.calibrate import _batched_fit, _polish, _problem
 
     unit, az = synthetic([1.0, 0.6, 2.0], 150, 8.0, seed=31)
     d, e = axial_terms(unit)

@@ -10,7 +10,7 @@ from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 from scipy.stats import circmean, circstd
 
-from stressmap import circular
+from stressmap.geo import circular
 
 
 def scipy_axial_mean(theta):

@@ -13,7 +13,7 @@ from numpy.testing import assert_allclose
 
 from stressmap.cli import main
 from stressmap.constants import CAUTION
-from stressmap.indicators import CONVERT_COLUMNS, read_indicators
+from stressmap.analyses.indicators import CONVERT_COLUMNS, read_indicators
 
 DATA = Path(__file__).parent / "data"
 SMALL = DATA / "indicators_small.csv"

@@ -21,7 +21,7 @@ from stressmap import CAUTION
 from stressmap.cli import main
 from stressmap.errors import NotFoundError, StorageError
 from stressmap.model import build_model, predict_points
-from stressmap.modeldir import MODEL_FILES, read_model, write_model
+from stressmap.io.modeldir import MODEL_FILES, read_model, write_model
 
 
 @pytest.fixture(scope="module")

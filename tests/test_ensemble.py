@@ -1,8 +1,8 @@
-"""Ensembles of load-group weights (stressmap.ensemble).
+"""Ensembles of load-group weights (stressmap.analyses.ensemble).
 
 Synthetic unit fields (random (G, P, 3) arrays) test the combination algebra; references:
 
-- one member: the statistics reduce to the forward tensor quantities of :mod:`stressmap.tensor`
+- one member: the statistics reduce to the forward tensor quantities of :mod:`stressmap.geo.tensor`
   (principal values, SHmax azimuth, Anderson regime, Simpson's A-phi) -- an independent code path;
 - axial mean / standard deviation: scipy.stats.circmean / circstd of the doubled angles, halved
   (Mardia & Jupp 2000, section 9.3.2 -- from memory);
@@ -20,8 +20,8 @@ import pytest
 from numpy.testing import assert_allclose, assert_array_equal
 from scipy.stats import circmean, circstd
 
-from stressmap import tensor
-from stressmap.ensemble import (
+from stressmap.geo import tensor
+from stressmap.analyses.ensemble import (
     chunk_statistics,
     ensemble_statistics,
     grid_coordinates,
@@ -47,7 +47,7 @@ def unit():
 
 
 def direct(unit, weights):
-    """Every member's tensor quantities computed with stressmap.tensor, shape (M, P)."""
+    """Every member's tensor quantities computed with stressmap.geo.tensor, shape (M, P)."""
     s = np.einsum("mg,gpc->mpc", weights, unit)
     return tensor.describe(s[..., 0], s[..., 1], s[..., 2])
 
@@ -187,7 +187,7 @@ def test_chunks_keep_memory_bounded():
 
 def test_pull_fraction_and_slab_age_map_to_weights():
     # Slab pull is proportional to the pull fraction; for age, the ratio of the force law.
-    from stressmap.forces import slab_pull_n_per_m
+    from stressmap.physics.forces import slab_pull_n_per_m
 
     assert_allclose(parameter_to_weight("pull_fraction", [0.06, 0.12], 0.12), [0.5, 1.0])
     ratio = slab_pull_n_per_m(80.0, 660.0, 0.1) / slab_pull_n_per_m(40.0, 660.0, 0.1)
@@ -251,7 +251,7 @@ def test_chunk_statistics_doctest_case():
 # ----------------------------------------------------------------------------- on a built model
 
 def test_model_ensemble_of_one_member_equals_predict_points(coarse_demo_model):
-    from stressmap.ensemble import ensemble_points
+    from stressmap.analyses.ensemble import ensemble_points
     from stressmap.model import predict_points
 
     m = coarse_demo_model
@@ -275,7 +275,7 @@ def test_model_ensemble_of_one_member_equals_predict_points(coarse_demo_model):
 
 
 def test_model_ensemble_grid_and_pull_fraction(coarse_demo_model):
-    from stressmap.ensemble import ensemble_grid
+    from stressmap.analyses.ensemble import ensemble_grid
 
     m = coarse_demo_model
     dist = {"subduction": {"distribution": "uniform", "low": 0.06, "high": 0.24,

@@ -11,7 +11,8 @@ import pytest
 import xarray as xr
 from numpy.testing import assert_allclose
 
-from stressmap import CAUTION, export
+from stressmap import CAUTION
+from stressmap.formats import export
 
 
 @pytest.fixture

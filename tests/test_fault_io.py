@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from stressmap.errors import InputError
-from stressmap.fault_io import faults_from_geojson, parse_dip_direction, read_fault_file
+from stressmap.io.faults import faults_from_geojson, parse_dip_direction, read_fault_file
 
 
 @pytest.mark.parametrize("text, deg", [("N", 0.0), ("ene", 67.5), ("SW", 225.0),
@@ -85,7 +85,7 @@ def test_demo_faults_are_fictional_and_lie_on_the_demo_plate():
 
     import shapely
 
-    from stressmap.plate import parse_plate
+    from stressmap.model.plate import parse_plate
 
     data = resources.files("stressmap.data")
     fc = json.loads(data.joinpath("demo_faults.geojson").read_text(encoding="utf-8"))

@@ -1,4 +1,4 @@
-"""Specification of stressmap.faults: tractions, tendencies, margins, trace geometry."""
+"""Specification of stressmap.analyses.faults: tractions, tendencies, margins, trace geometry."""
 
 from __future__ import annotations
 
@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from stressmap import faults as fl
-from stressmap import screening as sc
+from stressmap.analyses import faults as fl
+from stressmap.analyses import screening as sc
 from stressmap.errors import InputError
 
 

@@ -64,7 +64,7 @@ if _stage and _marker:
 
         _model.build_model = build_model
     elif _stage == "write":
-        import stressmap.modeldir as _modeldir
+        import stressmap.io.modeldir as _modeldir
 
         def fsync_dir(path, _calls=[]):
             _calls.append(path)

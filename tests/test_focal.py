@@ -18,7 +18,7 @@ from numpy.testing import assert_allclose
 from scipy.optimize import minimize_scalar
 from scipy.spatial.transform import Rotation
 
-from stressmap import focal
+from stressmap.geo import focal
 
 # (strike, dip, rake) table: pure and oblique slip, vertical and shallow planes (>= 30 rows).
 MECHANISMS = [

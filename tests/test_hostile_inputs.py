@@ -82,7 +82,7 @@ CASES = [
     Case("plates/negative_thickness.json", "model", 422, r"thickness_km must be > 0, got -100"),
     Case("plates/no_area.json", "model", 422, r"encloses no area|zero-length|self-intersect"),
     Case("plates/enormous_ring.json.gz", "model", 422, r"30,002 boundary vertices.*at most 20,000"),
-    # -- plate model files (stressmap.plate_io, as `stressmap model build` reads them) -----
+    # -- plate model files (stressmap.io.plate_files, as `stressmap model build` reads them) -----
     Case("plate_files/deeply_nested_boundary.geojson.gz", "plate_files", 422,
          r"not valid GeoJSON: maximum recursion depth"),
     Case("plate_files/huge_integer_params.json", "plate_files", 422,
@@ -239,7 +239,7 @@ def _problem_text(body: dict) -> str:
 
 
 def _read_plate_file(path: Path):
-    from stressmap.plate_io import load_plate_files
+    from stressmap.io.plate_files import load_plate_files
 
     if "params" in path.name:  # a good boundary (the corpus's fictional quadrilateral)
         boundary = path.with_name("boundary.geojson")
@@ -250,13 +250,13 @@ def _read_plate_file(path: Path):
 
 
 def _read_indicator_file(path: Path):
-    from stressmap.indicators import read_indicators
+    from stressmap.analyses.indicators import read_indicators
 
     return read_indicators(path)
 
 
 def _read_fault_file(path: Path):
-    from stressmap.fault_io import read_fault_file
+    from stressmap.io.faults import read_fault_file
 
     return read_fault_file(path)
 

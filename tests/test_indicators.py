@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from stressmap import indicators
+from stressmap.analyses import indicators
 from stressmap.errors import IndicatorFileError, InputError
 
 DATA = Path(__file__).parent / "data"
@@ -119,7 +119,7 @@ def test_geojson_and_geopackage_match_csv(small, tmp_path):
     import geopandas as gpd
     import pyogrio  # noqa: F401  (the engine geopandas uses to write GeoPackage)
 
-    from stressmap.indicators_io import indicators_geojson
+    from stressmap.io.indicators import indicators_geojson
 
     cols = [c for c in indicators.CONVERT_COLUMNS[:12] if c not in ("lon", "lat")] + ["source"]
     fc = indicators_geojson(small.reset_index(drop=True), columns=cols)

@@ -1,4 +1,4 @@
-"""Specification of the load builders (stressmap.loads): edge forces and their signs, transform
+"""Specification of the load builders (stressmap.fem.loads): edge forces and their signs, transform
 shear sense, body forces, basal drag and the torque closure."""
 
 from __future__ import annotations
@@ -7,7 +7,9 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from stressmap import forces, loads, sheet
+from stressmap.physics import forces
+from stressmap.fem import loads
+from stressmap.fem import sheet
 from stressmap.constants import EARTH_RADIUS_M, SECONDS_PER_MYR
 
 R = EARTH_RADIUS_M

@@ -1,4 +1,4 @@
-"""The SHmax map PNG (stressmap/maps.py): decodes as PNG, colours ticks by regime on cividis,
+"""The SHmax map PNG (stressmap/plot/maps.py): decodes as PNG, colours ticks by regime on cividis,
 skips points outside the plate, carries the caution.
 
 PNG decoding is Pillow's (independent of the matplotlib code that draws); the colour check uses
@@ -12,7 +12,7 @@ import io
 import numpy as np
 import pytest
 
-from stressmap.maps import BOUNDARY_STYLES, nice_scale_km, outline_segments, shmax_map
+from stressmap.plot.maps import BOUNDARY_STYLES, nice_scale_km, outline_segments, shmax_map
 
 PIL = pytest.importorskip("PIL.Image")
 

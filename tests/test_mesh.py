@@ -1,4 +1,4 @@
-"""Specification of stressmap.mesh: boundary-conforming triangulation of a plate on the sphere.
+"""Specification of stressmap.fem.mesh: boundary-conforming triangulation of a plate on the sphere.
 
 Exact areas come from pyproj's geodesic polygon area on a sphere (independent library); the
 facet area converges to it at second order in the edge length (chords of a sphere, analytic);
@@ -12,11 +12,11 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from stressmap import sphere
+from stressmap.geo import sphere
 from stressmap.constants import EARTH_RADIUS_KM
 from stressmap.errors import InputError
-from stressmap.mesh import Mesh, facet_areas_km2, mesh_plate, triangle_angles_deg
-from stressmap.plate import parse_plate
+from stressmap.fem.mesh import Mesh, facet_areas_km2, mesh_plate, triangle_angles_deg
+from stressmap.model.plate import parse_plate
 
 pyproj = pytest.importorskip("pyproj")
 GEOD = pyproj.Geod(a=6371e3, b=6371e3)

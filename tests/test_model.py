@@ -11,7 +11,8 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from stressmap import forces, model
+from stressmap import model
+from stressmap.physics import forces
 from stressmap.errors import InputError, ModelValidationError
 
 

@@ -9,7 +9,7 @@ import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
 
-from stressmap import observed
+from stressmap.analyses import observed
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError
 

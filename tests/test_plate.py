@@ -1,4 +1,4 @@
-"""Specification of stressmap.plate (plate model documents) and stressmap.plate_io (GIS files).
+"""Specification of stressmap.model.plate (plate model documents) and stressmap.io.plate_files (GIS files).
 
 Every malformed document gets its own specific message naming the field; all problems are
 collected; no exception other than ModelValidationError escapes parse_plate, whatever JSON it
@@ -18,10 +18,10 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
-from stressmap import sphere
+from stressmap.geo import sphere
 from stressmap.errors import InputError, ModelValidationError
-from stressmap.plate import MAX_EXTENT_DEG, PlateModel, parse_plate, plate_defaults
-from stressmap.plate_io import load_plate_files
+from stressmap.model.plate import MAX_EXTENT_DEG, PlateModel, parse_plate, plate_defaults
+from stressmap.io.plate_files import load_plate_files
 
 pyproj = pytest.importorskip("pyproj")
 GEOD = pyproj.Geod(a=6371e3, b=6371e3)

@@ -9,9 +9,9 @@ import pytest
 from numpy.testing import assert_allclose
 
 from stressmap import CAUTION
-from stressmap import plot_screening as ps
-from stressmap import screening as sc
-from stressmap.sitescreen import parse_request, screen
+from stressmap.plot import screening as ps
+from stressmap.analyses import screening as sc
+from stressmap.analyses.sitescreen import parse_request, screen
 
 
 @pytest.fixture(scope="module")

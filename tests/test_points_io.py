@@ -8,7 +8,7 @@ import pytest
 from numpy.testing import assert_allclose
 
 from stressmap.errors import InputError
-from stressmap.points_io import points_from_geojson, read_points
+from stressmap.io.points import points_from_geojson, read_points
 
 
 def test_csv_points_with_echoed_columns(tmp_path):

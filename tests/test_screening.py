@@ -1,4 +1,4 @@
-"""Specification of stressmap.screening: overburden, pore pressure, frictional limits, estimates."""
+"""Specification of stressmap.analyses.screening: overburden, pore pressure, frictional limits, estimates."""
 
 from __future__ import annotations
 
@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from stressmap import screening as sc
+from stressmap.analyses import screening as sc
 from stressmap.errors import InputError
 
 

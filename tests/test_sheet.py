@@ -1,4 +1,4 @@
-"""Specification of the thin-sheet solver (stressmap.sheet) against analytic solutions and an
+"""Specification of the thin-sheet solver (stressmap.fem.sheet) against analytic solutions and an
 independent finite-element library (scikit-fem).
 
 Test meshes are made here (scikit-fem's mesh generators, a graded polar mesh) so that the solver is
@@ -11,9 +11,10 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from stressmap import loads, sheet
+from stressmap.fem import loads
+from stressmap.fem import sheet
 from stressmap.constants import EARTH_RADIUS_M
-from stressmap.tensor import horizontal_principal, shmax_azimuth_deg
+from stressmap.geo.tensor import horizontal_principal, shmax_azimuth_deg
 
 R = EARTH_RADIUS_M
 YOUNG, POISSON, THICK = 70e9, 0.25, 100e3

@@ -1,4 +1,4 @@
-"""Specification of stressmap.sphere: vector geometry on a sphere of radius 6371 km.
+"""Specification of stressmap.geo.sphere: vector geometry on a sphere of radius 6371 km.
 
 Reference values come from pyproj (PROJ's geodesic and projection code on a spherical
 ellipsoid, an independent library) and from closed-form spherical trigonometry.
@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from stressmap import sphere
+from stressmap.geo import sphere
 from stressmap.constants import EARTH_RADIUS_KM
 
 pyproj = pytest.importorskip("pyproj")

@@ -8,7 +8,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
-from stressmap import tensor
+from stressmap.geo import tensor
 
 
 def test_principal_values_match_numpy_eigh():

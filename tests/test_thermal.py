@@ -13,7 +13,7 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy import integrate, sparse, special
 
-from stressmap import thermal
+from stressmap.physics import thermal
 from stressmap.constants import SECONDS_PER_MYR
 from stressmap.errors import InputError
 

@@ -76,7 +76,7 @@ def _count(body: dict, key: str, default: int, upper: int | None = None) -> int:
 def _indicators(body: dict, skip_bad: bool):
     """The request's indicators: ``indicators`` (GeoJSON) or ``indicators_csv`` (CSV text), as
     ``POST /models/{id}/compare`` takes them."""
-    from stressmap.indicators import indicators_from_csv_text, indicators_from_geojson
+    from stressmap.analyses.indicators import indicators_from_csv_text, indicators_from_geojson
 
     if ("indicators" in body) == ("indicators_csv" in body):
         raise InputError("give exactly one of indicators and indicators_csv",
@@ -98,7 +98,7 @@ def _indicators(body: dict, skip_bad: bool):
 
 def run_calibration(model, indicators, options: dict) -> dict:
     """Calibrate and serialise (runs on the compute pool)."""
-    from stressmap.calibrate import calibrate
+    from stressmap.analyses.calibrate import calibrate
 
     result = calibrate(model, indicators, **options)
     out = result.to_dict()
@@ -181,9 +181,9 @@ def run_ensemble_job(data_dir: str, model_id: str, job_id: str, spec: dict, prog
     Writes ``<data_dir>/jobs/<job_id>/ensemble.nc`` atomically (temporary file, fsync, rename)
     and returns a JSON-able summary with the links of the result.
     """
-    from stressmap import export
+    from stressmap.formats import export
     from stressmap.constants import CAUTION
-    from stressmap.ensemble import ensemble_grid, ensemble_points
+    from stressmap.analyses.ensemble import ensemble_grid, ensemble_points
 
     store = Store(data_dir, cache_size=0)
     model = store.load(model_id)
@@ -248,7 +248,7 @@ def _mask_outside(ds, polygon_wkt: str):
 @bp.post("/models/<model_id>/ensembles")
 @require_token
 def create_ensemble(model_id: str):
-    from stressmap.ensemble import DEFAULT_PERCENTILES, validate_distributions
+    from stressmap.analyses.ensemble import DEFAULT_PERCENTILES, validate_distributions
 
     check_id(model_id)
     body = _object_body()
@@ -326,8 +326,8 @@ def _load_result(path: Path):
 
 def render_ensemble(path: Path, fmt: str, meta: dict, model, props) -> tuple[bytes, dict]:
     """Body and headers of a stored ensemble in ``fmt`` (runs on the compute pool)."""
-    from stressmap import export
-    from stressmap.ensemble import ensemble_png, flatten_percentiles
+    from stressmap.formats import export
+    from stressmap.analyses.ensemble import ensemble_png, flatten_percentiles
     from stressmap.model import plate_outline
 
     stem = f"stressmap-{meta['model_id'][:8]}-ensemble"

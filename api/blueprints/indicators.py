@@ -9,8 +9,8 @@ misfit and regime agreement, and the summary. Answers as JSON (default), GeoJSON
 optional ``spacing_km``, ``min_count``, ``max_dispersion_deg``) as GeoJSON (default) or CF
 netCDF.
 
-Views are thin: validate, call the core (:mod:`stressmap.indicators`, :mod:`stressmap.compare`,
-:mod:`stressmap.observed`) within the request time limit, serialise. Every answer carries the
+Views are thin: validate, call the core (:mod:`stressmap.analyses.indicators`, :mod:`stressmap.analyses.compare`,
+:mod:`stressmap.analyses.observed`) within the request time limit, serialise. Every answer carries the
 caution; rows skipped with ``skip_bad`` are listed in ``skipped``.
 """
 
@@ -83,7 +83,7 @@ def _number(value, field, default=None, integer=False):
 
 def _indicators(body):
     """Parse the indicators of a request (exactly one of ``indicators`` and ``indicators_csv``)."""
-    from stressmap.indicators import indicators_from_csv_text, indicators_from_geojson
+    from stressmap.analyses.indicators import indicators_from_csv_text, indicators_from_geojson
 
     skip_bad = _flag(body.get("skip_bad"), "skip_bad")
     has_fc, has_csv = "indicators" in body, "indicators_csv" in body
@@ -106,23 +106,23 @@ def _indicators(body):
 
 
 def _compare_columns(table):
-    from stressmap.compare import COMPARISON_COLUMNS
-    from stressmap.indicators import CONVERT_COLUMNS
+    from stressmap.analyses.compare import COMPARISON_COLUMNS
+    from stressmap.analyses.indicators import CONVERT_COLUMNS
 
     lead = CONVERT_COLUMNS + COMPARISON_COLUMNS
     return lead + [c for c in table.columns if c not in lead and c not in ("geometry", "shmax_span_deg")]
 
 
 def _run_compare(model, gdf, weights, fmt, picture, meta):
-    from stressmap.compare import compare
-    from stressmap.indicators_io import indicators_csv, indicators_geojson
+    from stressmap.analyses.compare import compare
+    from stressmap.io.indicators import indicators_csv, indicators_geojson
 
     table, summary = compare(model, gdf, weights=weights)
     summary["model_id"] = meta["model_id"]
     flat = table.reset_index(drop=True)
     cols = _compare_columns(flat)
     if fmt == "png":
-        from stressmap.plot_indicators import comparison_map_png, rose_png
+        from stressmap.plot.indicators import comparison_map_png, rose_png
 
         caption = f"Model {meta['model_id']}, built {meta.get('build_time') or ''}"
         if picture == "map":
@@ -167,7 +167,7 @@ def compare_model(model_id: str):
 
 
 def _run_smooth(gdf, bbox, radius_km, spacing_km, min_count, max_dispersion_deg, max_nodes, fmt):
-    from stressmap.observed import observed_geojson, observed_grid, observed_netcdf_bytes
+    from stressmap.analyses.observed import observed_geojson, observed_grid, observed_netcdf_bytes
 
     ds = observed_grid(gdf, bbox=bbox, radius_km=radius_km, spacing_km=spacing_km, min_count=min_count,
                        max_dispersion_deg=max_dispersion_deg, max_nodes=max_nodes)

@@ -1,6 +1,6 @@
 """Site and fault screening: ``POST /screen`` (stress at depth, fault reactivation tendencies).
 
-Thin view: validate (:func:`stressmap.sitescreen.parse_request`), load the model by id from the
+Thin view: validate (:func:`stressmap.analyses.sitescreen.parse_request`), load the model by id from the
 store when one is named, run the screening within the request time limit, serialise as JSON,
 GeoJSON (planes and trace segments), CSV or PNG (Mohr diagram, stress polygon or fault map).
 Every answer carries the caution.
@@ -38,7 +38,7 @@ def _choice(value, options, field):
 
 
 def _run(req, model, model_info, fmt, picture):
-    from stressmap import sitescreen
+    from stressmap.analyses import sitescreen
 
     result = sitescreen.screen(req, model, model_info)
     if fmt == "json":
@@ -47,14 +47,14 @@ def _run(req, model, model_info, fmt, picture):
         return "geojson", sitescreen.result_geojson(result)
     if fmt == "csv":
         return "csv", sitescreen.result_csv(result)
-    from stressmap import plot_screening
+    from stressmap.plot import screening as plot_screening
 
     return "png", getattr(plot_screening, PICTURES[picture])(result)
 
 
 @bp.post("/screen")
 def screen():
-    from stressmap.sitescreen import parse_request
+    from stressmap.analyses.sitescreen import parse_request
 
     body = queries.json_body(request)
     if not isinstance(body, dict):

@@ -125,7 +125,7 @@ def load_config(path: str | None) -> dict:
 
 
 def _read_model(path: str):
-    from stressmap.modeldir import read_model
+    from stressmap.io.modeldir import read_model
 
     if not Path(path).is_dir():
         raise InputError(f"model directory not found: {path}",
@@ -136,8 +136,8 @@ def _read_model(path: str):
 
 def _cmd_calibrate(args) -> int:
     from stressmap import CAUTION
-    from stressmap.calibrate import calibrate
-    from stressmap.indicators import read_indicators
+    from stressmap.analyses.calibrate import calibrate
+    from stressmap.analyses.indicators import read_indicators
 
     config = dict(load_config(args.config).get("calibration") or {})
     bounds = dict(config.get("bounds") or {})
@@ -198,8 +198,9 @@ def _cmd_calibrate(args) -> int:
 
 
 def _cmd_ensemble(args) -> int:
-    from stressmap import CAUTION, export
-    from stressmap.ensemble import (
+    from stressmap import CAUTION
+    from stressmap.formats import export
+    from stressmap.analyses.ensemble import (
         ensemble_grid,
         ensemble_png,
         ensemble_points,
@@ -231,7 +232,7 @@ def _cmd_ensemble(args) -> int:
     bar, update = progress_bar("ensemble")
     try:
         if args.points:
-            from stressmap.points_io import read_points
+            from stressmap.io.points import read_points
 
             lon, lat, props = read_points(args.points)
             ds = ensemble_points(model, lon, lat, progress=update, **kwargs)

@@ -15,7 +15,8 @@ import math
 import tomllib
 from pathlib import Path
 
-from stressmap import forces, thermal
+from stressmap.physics import forces
+from stressmap.physics import thermal
 from stressmap.errors import InputError, problem
 
 __all__ = ["register", "calculate", "format_table"]

@@ -63,7 +63,7 @@ def load_document(path: str, params: str | None = None) -> dict:
     if not p.is_file():
         raise InputError(f"model file not found: {path}", [problem("file not found", field=path)])
     if params is not None or p.suffix.lower() in (".gpkg", ".geojson"):
-        from stressmap.plate_io import load_plate_files
+        from stressmap.io.plate_files import load_plate_files
 
         return load_plate_files(p, params)
     try:
@@ -75,7 +75,7 @@ def load_document(path: str, params: str | None = None) -> dict:
 
 def _cmd_build(args) -> int:
     from stressmap.model import build_model
-    from stressmap.modeldir import write_model
+    from stressmap.io.modeldir import write_model
 
     document = load_document(args.model, args.params)
     bar, update = progress_bar("build")
@@ -95,10 +95,11 @@ def _cmd_build(args) -> int:
 
 
 def _cmd_predict(args) -> int:
-    from stressmap import CAUTION, export
+    from stressmap import CAUTION
+    from stressmap.formats import export
     from stressmap.model import predict_grid, predict_points
-    from stressmap.modeldir import read_model
-    from stressmap.points_io import read_points
+    from stressmap.io.modeldir import read_model
+    from stressmap.io.points import read_points
 
     model = read_model(args.model_dir)
     weights = parse_weights(args.weights)

@@ -68,8 +68,8 @@ def read_density_profile(path) -> dict:
 def build_request(args) -> dict:
     """Turn parsed options into the shared request document (:func:`sitescreen.parse_request`)."""
     from stressmap.cli.model import parse_weights
-    from stressmap.fault_io import read_fault_file
-    from stressmap.sitescreen import parse_plane_text, parse_site_text
+    from stressmap.io.faults import read_fault_file
+    from stressmap.analyses.sitescreen import parse_plane_text, parse_site_text
 
     doc: dict = {"site": list(parse_site_text(args.site)), "depth_km": args.depth_km}
     for key in ("shmax_azimuth_deg", "regime", "shape_ratio", "friction", "cohesion_mpa",
@@ -112,7 +112,7 @@ def build_request(args) -> dict:
         if value is not None:
             unc[key] = value
     if args.indicators:
-        from stressmap.indicators import read_indicators
+        from stressmap.analyses.indicators import read_indicators
 
         unc["indicators"] = read_indicators(args.indicators)
     if args.indicator_radius_km is not None:
@@ -192,14 +192,14 @@ def format_text(doc: dict) -> str:
 
 
 def _run(args) -> int:
-    from stressmap.sitescreen import (parse_request, result_csv, result_geojson, result_json,
+    from stressmap.analyses.sitescreen import (parse_request, result_csv, result_geojson, result_json,
                                       screen)
 
     doc = build_request(args)
     req = parse_request(doc)
     model = model_info = None
     if args.model:
-        from stressmap.modeldir import read_model
+        from stressmap.io.modeldir import read_model
 
         model = read_model(args.model)
         summary = getattr(model, "summary", {}) or {}
@@ -215,7 +215,7 @@ def _run(args) -> int:
     pictures = (("mohr_png", "mohr_png"), ("polygon_png", "polygon_png"),
                 ("map_png", "fault_map_png"))
     if any(getattr(args, opt) for opt, _ in pictures):
-        from stressmap import plot_screening
+        from stressmap.plot import screening as plot_screening
 
         for opt, fn in pictures:
             target = getattr(args, opt)

@@ -116,10 +116,11 @@ def _cmd_serve(args) -> int:
 
 
 def _cmd_demo(args) -> int:
-    from stressmap import CAUTION, export
-    from stressmap.maps import shmax_map
+    from stressmap import CAUTION
+    from stressmap.formats import export
+    from stressmap.plot.maps import shmax_map
     from stressmap.model import build_model, plate_outline, predict_grid
-    from stressmap.modeldir import write_model
+    from stressmap.io.modeldir import write_model
 
     if not (args.spacing_km > 0 and math.isfinite(args.spacing_km)):
         raise InputError("--spacing-km must be a positive number",

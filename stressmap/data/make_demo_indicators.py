@@ -67,7 +67,7 @@ def _inside_points(model, n, rng, lon_range=(-37.0, 12.0), lat_range=(-37.0, 0.0
 
 def _mechanisms(shmax, regime, rng):
     """Strike, dip, rake of double couples whose axes match SHmax and the regime (with noise)."""
-    from stressmap import focal
+    from stressmap.geo import focal
 
     n = shmax.size
     small = rng.uniform(0.0, 12.0, n)
@@ -91,7 +91,7 @@ def make_demo_indicators(model, seed: int = SEED):
     import pandas as pd
 
     from stressmap.model import predict_points
-    from stressmap.sphere import great_circle_distance_km
+    from stressmap.geo.sphere import great_circle_distance_km
 
     rng = np.random.default_rng(seed)
     frames = []

@@ -118,7 +118,7 @@ def plates() -> None:
 
 
 def plate_files() -> None:
-    # Boundary and parameter files for `stressmap model build` (stressmap.plate_io).
+    # Boundary and parameter files for `stressmap model build` (stressmap.io.plate_files).
     _write("plate_files/deeply_nested_boundary.geojson.gz", "[" * 100_000 + "]" * 100_000)
     _write("plate_files/huge_integer_params.json", '{"sheet": {"thickness_km": ' + "7" * 5000 + "}}")
     _write("plate_files/not_utf8_boundary.geojson", b'{"type": "FeatureCollection", "name": "\xe9"}')

@@ -9,7 +9,7 @@ one code path). Conventions used throughout:
   clockwise from north;
 - Anderson's assumption: one principal stress is vertical (Sv); the horizontal ones are SHmax
   (azimuth from the model or the user) and Shmin;
-- regime codes as in :mod:`stressmap.tensor`: 0 normal (Sv >= SHmax >= Shmin), 1 strike-slip
+- regime codes as in :mod:`stressmap.geo.tensor`: 0 normal (Sv >= SHmax >= Shmin), 1 strike-slip
   (SHmax >= Sv >= Shmin), 2 reverse (SHmax >= Shmin >= Sv);
 - shape ratio phi = (S2 - S3) / (S1 - S3) in [0, 1].
 
@@ -31,7 +31,7 @@ import numpy as np
 
 from stressmap.constants import G_M_S2
 from stressmap.errors import InputError, problem
-from stressmap.tensor import REGIMES
+from stressmap.geo.tensor import REGIMES
 
 __all__ = [
     "REGIMES",

@@ -10,7 +10,7 @@ weights), unweighted mean and median, weighted RMS misfit, weighted axial mean m
 systematic rotation of the model), fractions within 15 and 30 degrees, and the comparison with
 random orientations -- for unrelated orientations the absolute misfit is uniform on [0, 90]
 (mean 45 degrees, a third within 30 degrees): a z score and one-sided p-value for the mean
-(:func:`stressmap.circular.random_misfit_significance`) and an exact binomial p-value for the
+(:func:`stressmap.geo.circular.random_misfit_significance`) and an exact binomial p-value for the
 count within 30 degrees (scipy.stats.binomtest). The same statistics are given by indicator type
 and by province, and the share of regime agreements.
 """
@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from stressmap import circular
+from stressmap.geo import circular
 from stressmap.constants import CAUTION
 
 __all__ = [
@@ -156,7 +156,7 @@ def compare(model, indicators, weights=None):
     ----------
     model : stressmap.model.BuiltModel
     indicators : geopandas.GeoDataFrame
-        As from :func:`stressmap.indicators.read_indicators`.
+        As from :func:`stressmap.analyses.indicators.read_indicators`.
     weights : dict, optional
         Load-group weights (see :func:`stressmap.model.resolve_weights`).
 

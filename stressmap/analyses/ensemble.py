@@ -6,8 +6,8 @@ products, never new solves. For each point this module returns
 
 - the axial (circular) mean SHmax azimuth over members and the axial standard deviation
   ``0.5 sqrt(-2 ln R)`` of the doubled angles (Mardia & Jupp 2000, section 9.3.2 -- from memory;
-  the same definitions as :mod:`stressmap.circular`), with the mean resultant length ``R``;
-- the probability of each Anderson regime (share of members; :func:`stressmap.tensor.regime_code`);
+  the same definitions as :mod:`stressmap.geo.circular`), with the mean resultant length ``R``;
+- the probability of each Anderson regime (share of members; :func:`stressmap.geo.tensor.regime_code`);
 - the mean of Simpson's A-phi regime index over members;
 - percentiles of the horizontal principal stresses ``s_hmax`` and ``s_hmin`` (MPa).
 
@@ -19,7 +19,7 @@ cluster when given a scheduler address or client (``dask``/``distributed`` impor
 Weights are drawn per load group from ``uniform``, ``log-uniform`` or ``normal`` (optionally
 truncated) distributions with a fixed seed. A distribution may be given for a physical parameter
 that maps onto the group's weight: ``pull_fraction`` (slab pull is proportional to it),
-``slab_age_myr`` (weight = ratio of :func:`stressmap.forces.slab_pull_n_per_m` at the drawn and the
+``slab_age_myr`` (weight = ratio of :func:`stressmap.physics.forces.slab_pull_n_per_m` at the drawn and the
 reference age), or ``scale`` / ``weight`` (the weight itself).
 """
 
@@ -206,7 +206,7 @@ def parameter_to_weight(parameter: str, values, reference: float, slab_depth_km:
 
     ``weight``/``scale`` are weights already. Slab pull is proportional to the transmitted fraction,
     so ``pull_fraction`` maps to ``values / reference``. ``slab_age_myr`` maps to
-    ``slab_pull(values) / slab_pull(reference)`` with :func:`stressmap.forces.slab_pull_n_per_m`
+    ``slab_pull(values) / slab_pull(reference)`` with :func:`stressmap.physics.forces.slab_pull_n_per_m`
     at ``slab_depth_km`` (the fraction cancels).
 
     Examples
@@ -224,7 +224,7 @@ def parameter_to_weight(parameter: str, values, reference: float, slab_depth_km:
     if parameter == "pull_fraction":
         return values / reference
     if parameter == "slab_age_myr":
-        from stressmap.forces import slab_pull_n_per_m
+        from stressmap.physics.forces import slab_pull_n_per_m
 
         ref = slab_pull_n_per_m(float(reference), slab_depth_km, 1.0, params)
         return np.asarray(slab_pull_n_per_m(values, slab_depth_km, 1.0, params), float) / ref
@@ -283,7 +283,7 @@ def sample_weights(groups, distributions=None, members=1000, seed=0, default_wei
 def regime_index_from_principal(s_hmax, s_hmin):
     """Simpson's A-phi from the horizontal principal stresses, closed form (vertical = 0).
 
-    Same values as :func:`stressmap.tensor.regime_index` with fewer temporaries: reverse
+    Same values as :func:`stressmap.geo.tensor.regime_index` with fewer temporaries: reverse
     ``2 + s_hmin/s_hmax``; strike-slip ``2 - phi`` with ``phi = -s_hmin/(s_hmax - s_hmin)``;
     normal ``(s_hmax - s_hmin)/(-s_hmin)``.
 
@@ -660,7 +660,7 @@ def _group_references(model) -> dict:
     segments that give them (a scenario then scales every such segment of the group alike).
     """
     try:
-        from stressmap.plate import parse_plate
+        from stressmap.model.plate import parse_plate
 
         plate = parse_plate(model.definition)
     except Exception:  # noqa: BLE001 - references are optional; specs may give them
@@ -729,7 +729,7 @@ def ensemble_points(model, lon, lat, members=1000, distributions=None, seed=0,
     import xarray as xr
 
     from stressmap.model import unit_stress_at
-    from stressmap.tensor import REGIMES
+    from stressmap.geo.tensor import REGIMES
 
     lon = np.atleast_1d(np.asarray(lon, dtype=float))
     lat = np.atleast_1d(np.asarray(lat, dtype=float))
@@ -822,8 +822,8 @@ def flatten_percentiles(ds):
 
 def ensemble_png(ds, outline=None, title=None, caption=None) -> bytes:
     """PNG map of an ensemble: mean SHmax ticks coloured by the mean A-phi, with the axial
-    standard deviation drawn as a fan around each tick (:func:`stressmap.maps.shmax_map`)."""
-    from stressmap.maps import shmax_map
+    standard deviation drawn as a fan around each tick (:func:`stressmap.plot.maps.shmax_map`)."""
+    from stressmap.plot.maps import shmax_map
 
     if "point" in ds.dims:
         lon = np.asarray(ds["lon"].values, float)

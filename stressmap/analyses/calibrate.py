@@ -91,7 +91,7 @@ def axial_terms(unit):
 def indicator_kappa(sigma_deg=None, weight=None, n=None):
     """Misfit weights ``k_i`` of indicators: their ``weight`` where given, else ``1 / sigma_i**2``.
 
-    The indicator reader's weight is ``(20 / sigma_deg)**2`` (:mod:`stressmap.indicators`), i.e.
+    The indicator reader's weight is ``(20 / sigma_deg)**2`` (:mod:`stressmap.analyses.indicators`), i.e.
     already proportional to ``1 / sigma**2``, the von Mises concentration of an angle with
     standard deviation sigma; only ratios matter (the objective is normalised by ``sum k``).
     Missing or unusable values count 1; negative weights count 0.
@@ -578,7 +578,7 @@ def calibrate_arrays(unit, observed_deg, kappa=None, *, groups=None, default_wei
     observed calibrated misfit}) / (1 + n_random), the null distribution's mean and 5th
     percentile, the same test for the misfit *reduction* (``reduction_p_value``), the analytic
     reference ``random_misfit_deg`` = 45 and the analytic one-sided p-value of the calibrated misfit
-    against it (:func:`stressmap.circular.random_misfit_significance`; it ignores the freedom of the
+    against it (:func:`stressmap.geo.circular.random_misfit_significance`; it ignores the freedom of the
     fit, which the Monte Carlo ``p_value`` accounts for).
     """
     unit = np.asarray(unit, dtype=float)
@@ -656,7 +656,7 @@ def calibrate_arrays(unit, observed_deg, kappa=None, *, groups=None, default_wei
     ci[ref] = w0[ref]
 
     # Significance: calibrate the same model to uniformly random azimuths.
-    from stressmap.circular import random_misfit_significance
+    from stressmap.geo.circular import random_misfit_significance
 
     _, z_after, p_analytic = random_misfit_significance(np.abs(residuals), kappa)
     significance = {"random_misfit_deg": 45.0, "n_random": int(n_random), "seed": int(seed),
@@ -756,7 +756,7 @@ def calibrate(model, indicators, *, bounds=None, reference=None, n_starts=8, n_b
     ----------
     model : stressmap.model.BuiltModel
     indicators : geopandas.GeoDataFrame
-        As returned by :func:`stressmap.indicators.read_indicators` (point geometry,
+        As returned by :func:`stressmap.analyses.indicators.read_indicators` (point geometry,
         ``shmax_azimuth_deg``, ``sigma_deg``, ``weight``).
     bounds : dict, optional
         ``group -> [low, high]``; groups not named get :data:`DEFAULT_BOUNDS`. (The CLI and the

@@ -37,7 +37,8 @@ import logging
 
 import numpy as np
 
-from stressmap import circular, focal
+from stressmap.geo import circular
+from stressmap.geo import focal
 from stressmap.errors import IndicatorFileError, problem
 
 __all__ = [
@@ -354,11 +355,11 @@ def read_indicators(path, skip_bad: bool = False):
     """Read, validate and convert an indicator file (CSV, GeoJSON or GeoPackage).
 
     See :func:`prepare_indicators` for the result; file reading is in
-    :mod:`stressmap.indicators_io`.
+    :mod:`stressmap.io.indicators`.
     """
     from pathlib import Path
 
-    from stressmap.indicators_io import read_table
+    from stressmap.io.indicators import read_table
 
     table, probs = read_table(path)
     return prepare_indicators(table, skip_bad=skip_bad, problems=probs, name=Path(path).name)
@@ -366,7 +367,7 @@ def read_indicators(path, skip_bad: bool = False):
 
 def indicators_from_geojson(doc, skip_bad: bool = False, field: str = "indicators"):
     """Indicators from a GeoJSON FeatureCollection dict (as sent to the HTTP service)."""
-    from stressmap.indicators_io import table_from_geojson
+    from stressmap.io.indicators import table_from_geojson
 
     table, probs = table_from_geojson(doc, field=field)
     return prepare_indicators(table, skip_bad=skip_bad, problems=probs, name=field)
@@ -382,7 +383,7 @@ def indicators_from_csv_text(text: str, skip_bad: bool = False, name: str = "ind
     >>> gdf["shmax_azimuth_deg"].tolist(), gdf["sigma_deg"].tolist(), gdf["weight"].tolist()
     ([100.0, 10.0], [20.0, 20.0], [1.0, 1.0])
     """
-    from stressmap.indicators_io import table_from_csv_text
+    from stressmap.io.indicators import table_from_csv_text
 
     table, probs = table_from_csv_text(text, name)
     return prepare_indicators(table, skip_bad=skip_bad, problems=probs, name=name)

@@ -31,7 +31,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from stressmap import sphere
+from stressmap.geo import sphere
 from stressmap.constants import EARTH_RADIUS_KM
 from stressmap.errors import ModelValidationError, problem
 
@@ -88,7 +88,7 @@ def plate_defaults() -> dict:
     """Defaults for the ``sheet``, ``drag``, ``mesh`` and ``ridge_push`` tables of a document.
 
     Read from the tables of the same names in ``stressmap/data/defaults.toml`` (via
-    ``stressmap.forces.load_defaults``), so the force calculator and plate models agree.
+    ``stressmap.physics.forces.load_defaults``), so the force calculator and plate models agree.
 
     Examples
     --------
@@ -98,7 +98,7 @@ def plate_defaults() -> dict:
     >>> d["drag"]["closure"], d["ridge_push"]["mode"]
     ('torque_balance', 'edge')
     """
-    from stressmap.forces import load_defaults
+    from stressmap.physics.forces import load_defaults
 
     loaded = load_defaults()
     return {table: {k: loaded[table][k] for k in keys} for table, keys in _DEFAULT_FIELDS.items()}
@@ -897,9 +897,9 @@ def _frozen(a) -> np.ndarray:
 def load_plate_files(boundary_path, params_path=None) -> dict:
     """Build a plate model document from a boundary file and a parameter file.
 
-    Thin wrapper over :func:`stressmap.plate_io.load_plate_files` (file reading lives in the I/O
+    Thin wrapper over :func:`stressmap.io.plate_files.load_plate_files` (file reading lives in the I/O
     module); see there.
     """
-    from stressmap.plate_io import load_plate_files as _load
+    from stressmap.io.plate_files import load_plate_files as _load
 
     return _load(boundary_path, params_path)

@@ -2,7 +2,7 @@
 
 The reader returns the cells as they are (strings for CSV, JSON values for GeoJSON properties)
 together with ``lon``/``lat`` (from point geometries for vector files) and any problems with
-geometries; :func:`stressmap.indicators.prepare_indicators` validates and converts them. Rows
+geometries; :func:`stressmap.analyses.indicators.prepare_indicators` validates and converts them. Rows
 are numbered as data rows from 1 (a CSV header and ``#`` comment lines are not counted; in a
 vector file, row N is the N-th feature).
 """

@@ -7,12 +7,12 @@ collects every problem with its field name). :func:`screen` then
    (``stressmap.model.predict_points``) unless the user overrides them;
 2. integrates the density profile for Sv, sets the pore pressure (hydrostatic, a gradient or a
    value) and puts the crust at frictional equilibrium in that regime with that shape ratio
-   (:mod:`stressmap.screening`), keeping any measured magnitude the user gives;
+   (:mod:`stressmap.analyses.screening`), keeping any measured magnitude the user gives;
 3. resolves the stress on every plane -- strike/dip planes and the straight segments of GIS
    traces -- and ranks them by the pore-pressure increase that would bring them to failure
-   (:mod:`stressmap.faults`);
+   (:mod:`stressmap.analyses.faults`);
 4. optionally samples the uncertain inputs (friction, pore pressure, overburden density, and the
-   orientation: the members of a model ensemble (``stressmap.ensemble``) when ensemble members
+   orientation: the members of a model ensemble (``stressmap.analyses.ensemble``) when ensemble members
    or load-group distributions are given, otherwise a normal spread of the SHmax azimuth whose
    standard deviation is user-given, derived from stress indicators near the site
    (:func:`indicator_spread_deg`) or 15 degrees by default) and reports percentiles of each
@@ -30,8 +30,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from stressmap import faults as fl
-from stressmap import screening as sc
+from stressmap.analyses import faults as fl
+from stressmap.analyses import screening as sc
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, OutsidePlateError, problem
 
@@ -138,7 +138,7 @@ class ScreenRequest:
     margin_threshold_mpa: float = 0.0
     ensemble_members: int = 0
     ensemble_distributions: dict | None = None
-    indicators: object | None = None     # geopandas.GeoDataFrame from stressmap.indicators
+    indicators: object | None = None     # geopandas.GeoDataFrame from stressmap.analyses.indicators
     indicator_radius_km: float = 500.0
 
 
@@ -236,7 +236,7 @@ def parse_request(doc: dict) -> ScreenRequest:
     or ``pore_pressure_mpa`` (default hydrostatic), measured ``sv_mpa``, ``shmax_mpa``,
     ``shmin_mpa``, model ``weights``, ``planes`` (list of {strike_deg, dip_deg, name} or
     "STRIKE/DIP" strings), ``faults`` (GeoJSON FeatureCollection, see
-    :mod:`stressmap.fault_io`) and ``uncertainty`` ({samples, seed, friction_range,
+    :mod:`stressmap.io.faults`) and ``uncertainty`` ({samples, seed, friction_range,
     pore_pressure_range_mpa | pore_gradient_range_mpa_km, density_range_kg_m3,
     azimuth_sigma_deg, shape_ratio_range, margin_threshold_mpa, ensemble_members,
     ensemble_distributions}).
@@ -252,7 +252,7 @@ def parse_request(doc: dict) -> ScreenRequest:
     ...
     stressmap.errors.InputError: must be > 0.0, got -1.0
     """
-    from stressmap.fault_io import faults_from_geojson
+    from stressmap.io.faults import faults_from_geojson
 
     if not isinstance(doc, dict):
         raise InputError("the screening request must be a JSON object",
@@ -410,7 +410,7 @@ def parse_request(doc: dict) -> ScreenRequest:
         dists = None
     indicators = unc.get("indicators")
     if indicators is not None and isinstance(indicators, dict):
-        from stressmap.indicators import indicators_from_geojson
+        from stressmap.analyses.indicators import indicators_from_geojson
 
         try:
             indicators = indicators_from_geojson(indicators, field="uncertainty.indicators")
@@ -484,7 +484,7 @@ def ensemble_orientation(model, lon: float, lat: float, members: int, seed: int 
                          distributions=None) -> dict:
     """Azimuth, regime code and shape ratio of every member of a model ensemble at a site.
 
-    Uses :func:`stressmap.ensemble.ensemble_points` for the member weights (load-group force
+    Uses :func:`stressmap.analyses.ensemble.ensemble_points` for the member weights (load-group force
     magnitudes drawn from the model's or the given distributions) and the stored unit solutions
     (``stressmap.model.unit_stress_at``): member stress = weights @ unit stress.
 
@@ -492,9 +492,9 @@ def ensemble_orientation(model, lon: float, lat: float, members: int, seed: int 
     -------
     dict of (M,) arrays: ``shmax_azimuth_deg``, ``regime_code``, ``shape_ratio``.
     """
-    from stressmap.ensemble import ensemble_points
+    from stressmap.analyses.ensemble import ensemble_points
     from stressmap.model import unit_stress_at
-    from stressmap.tensor import describe
+    from stressmap.geo.tensor import describe
 
     ds = ensemble_points(model, [lon], [lat], members=members, distributions=distributions,
                          seed=seed)
@@ -514,9 +514,9 @@ def indicator_spread_deg(indicators, lon: float, lat: float, radius_km: float = 
     """Orientation spread (degrees) derived from stress indicators near a site.
 
     With a model: the weighted RMS misfit between the indicators and the model's SHmax
-    (:func:`stressmap.compare.compare`), i.e. how far the model's azimuth is typically off. Without
+    (:func:`stressmap.analyses.compare.compare`), i.e. how far the model's azimuth is typically off. Without
     one: the weighted axial standard deviation of the indicators' SHmax azimuths
-    (:func:`stressmap.circular.axial_std_deg`). Indicators within ``radius_km`` of the site
+    (:func:`stressmap.geo.circular.axial_std_deg`). Indicators within ``radius_km`` of the site
     (great circles on the 6371 km sphere) are used; when fewer than 3 are that close, all of
     them are, and the answer says so.
 
@@ -539,7 +539,7 @@ def indicator_spread_deg(indicators, lon: float, lat: float, radius_km: float = 
         scope = f"all {int(near.sum())} indicators (fewer than 3 within {radius_km:g} km)"
     chosen = indicators[near]
     if model is not None:
-        from stressmap.compare import compare
+        from stressmap.analyses.compare import compare
 
         table, _ = compare(model, chosen, weights)
         ok = table["inside"].to_numpy(bool) & np.isfinite(table["misfit_deg"].to_numpy(float))
@@ -552,7 +552,7 @@ def indicator_spread_deg(indicators, lon: float, lat: float, radius_km: float = 
         sigma = float(np.sqrt(np.sum(w * m**2) / np.sum(w)))
         how = f"indicator-derived: weighted RMS misfit of the model against {scope}"
     else:
-        from stressmap.circular import axial_std_deg
+        from stressmap.geo.circular import axial_std_deg
 
         az = chosen["shmax_azimuth_deg"].to_numpy(float)
         w = chosen["weight"].to_numpy(float) if "weight" in chosen else None
@@ -882,13 +882,13 @@ def _sample(result: ScreenResult, model, profile, rho_mean, code, phi, az, orien
         if req.shape_ratio is None and req.shape_ratio_range is None:
             phis = np.where(np.isfinite(ens["shape_ratio"][pick]), ens["shape_ratio"][pick], phi)
         info["orientation_source"] = (
-            f"model ensemble (stressmap.ensemble, {members} members, resampled): "
+            f"model ensemble (stressmap.analyses.ensemble, {members} members, resampled): "
             "SHmax azimuth" + (", regime" if req.regime is None else "") +
             (" and shape ratio" if req.shape_ratio is None and req.shape_ratio_range is None
              else "") + " per member")
         info["ensemble_members"] = members
         info["ensemble_distributions"] = dists or model_dists
-        from stressmap.circular import axial_std_deg
+        from stressmap.geo.circular import axial_std_deg
 
         info["ensemble_azimuth_std_deg"] = float(axial_std_deg(ens["shmax_azimuth_deg"]))
     else:

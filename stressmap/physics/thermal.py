@@ -339,7 +339,7 @@ def column_moments(age_myr, model: str = "half_space", params=None) -> dict:
     Returns a dict of arrays (broadcast over ``age_myr``): ``j_m`` = integral of v ds (m),
     ``i_m2`` = integral of s v ds (m^2), and their time derivatives ``dj_m_per_s`` and
     ``di_m2_per_s``. Subsidence is ``rho_m alpha (Tm - T0) j / (rho_m - rho_w)``; ridge push uses
-    both moments (see :mod:`stressmap.forces`).
+    both moments (see :mod:`stressmap.physics.forces`).
 
     Half-space: ``j = 2 sqrt(kappa t / pi)``, ``i = kappa t``. Plate (above the switch):
     ``j = a [1/2 - sum_odd 4/(n^2 pi^2) e^(-n^2 x)]``,

@@ -6,7 +6,7 @@ the sphere of radius 6371 km) contributes with weight ``w = w_distance * w_indic
 * ``w_distance = (1 - (d / radius)^3)^3`` (tricube kernel: 1 at the node, falling smoothly to 0 at
   the radius; a common choice in local regression, Cleveland 1979, from memory);
 * ``w_indicator`` = the indicator's ``weight`` (``(20 / sigma_deg)^2``, see
-  :mod:`stressmap.indicators`).
+  :mod:`stressmap.analyses.indicators`).
 
 The node's value is the weighted axial mean of the SHmax azimuths (doubled angles); its
 ``dispersion_deg`` is the weighted axial circular standard deviation, ``count`` the number of
@@ -20,7 +20,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from stressmap import circular
+from stressmap.geo import circular
 from stressmap.constants import CAUTION, EARTH_RADIUS_KM
 from stressmap.errors import InputError, problem
 
@@ -195,7 +195,7 @@ def observed_grid(indicators, bbox, radius_km, spacing_km=None, min_count=3,
     ----------
     indicators : DataFrame-like
         Columns ``lon``, ``lat``, ``shmax_azimuth_deg`` and ``weight`` (as from
-        :func:`stressmap.indicators.read_indicators`).
+        :func:`stressmap.analyses.indicators.read_indicators`).
     bbox : (W, S, E, N) degrees
     radius_km : float
         Search radius, km.
@@ -298,7 +298,7 @@ def observed_geojson(ds, meta: dict | None = None, with_empty: bool = False) -> 
 
 
 def observed_netcdf_bytes(ds, meta: dict | None = None) -> bytes:
-    """The grid as CF netCDF-4 bytes (via :func:`stressmap.export.netcdf_bytes`)."""
-    from stressmap.export import netcdf_bytes
+    """The grid as CF netCDF-4 bytes (via :func:`stressmap.formats.export.netcdf_bytes`)."""
+    from stressmap.formats.export import netcdf_bytes
 
     return netcdf_bytes(ds, meta)

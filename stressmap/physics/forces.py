@@ -26,7 +26,7 @@ Distributed ridge push: the body force per unit area is ``dF/dt * grad(age)``, p
 older lithosphere (:func:`ridge_push_rate_n_per_m_per_myr`, :func:`ridge_push_body_force_n_per_m2`).
 
 Slab pull: transmitted fraction times ``g`` times the integrated thermal density anomaly of the
-slab (kg/m^2, :func:`stressmap.thermal.integrated_density_anomaly_kg_m2`) times its vertical
+slab (kg/m^2, :func:`stressmap.physics.thermal.integrated_density_anomaly_kg_m2`) times its vertical
 extent; the down-dip length ``L / sin(dip)`` and the down-dip component ``sin(dip)`` of gravity
 cancel, so the force does not depend on dip.
 
@@ -46,10 +46,10 @@ from collections.abc import Mapping
 import numpy as np
 from scipy import integrate
 
-from stressmap import thermal
+from stressmap.physics import thermal
 from stressmap.constants import G_M_S2, M_PER_S_PER_MM_PER_YR, SECONDS_PER_MYR
 from stressmap.errors import InputError, problem
-from stressmap.thermal import load_defaults, resolve_params
+from stressmap.physics.thermal import load_defaults, resolve_params
 
 __all__ = [
     "SEGMENT_KINDS",

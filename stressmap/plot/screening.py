@@ -76,7 +76,7 @@ def _margin_norm(margins):
 
 
 def mohr_figure(result):
-    """Mohr diagram of a :class:`stressmap.sitescreen.ScreenResult`."""
+    """Mohr diagram of a :class:`stressmap.analyses.sitescreen.ScreenResult`."""
     from matplotlib.patches import Circle
 
     s = result.site
@@ -128,7 +128,7 @@ def mohr_png(result) -> bytes:
 
 
 def polygon_figure(result):
-    """Stress polygon of a :class:`stressmap.sitescreen.ScreenResult`."""
+    """Stress polygon of a :class:`stressmap.analyses.sitescreen.ScreenResult`."""
     from matplotlib.patches import Polygon
 
     s = result.site
@@ -149,7 +149,7 @@ def polygon_figure(result):
     ax.text((sv + ceiling) / 2 - 0.06 * (ceiling - sv), (sv + 2 * ceiling) / 3 + 0.05 *
             (ceiling - sv), "RF", ha="center", fontsize=10, color="0.3")
     if result.samples is not None:
-        from stressmap.screening import stress_polygon
+        from stressmap.analyses.screening import stress_polygon
 
         smp = result.samples
         mu_lo, mu_hi = float(np.min(smp["friction"])), float(np.max(smp["friction"]))

@@ -14,7 +14,7 @@ The look (DESIGN.md "Pictures") is our own and made for reading:
 
 Coordinates are drawn in a local equirectangular frame (x = lon, y = lat, aspect 1/cos of the
 mean latitude) so that directions on the page match azimuths near the plate's centre.
-matplotlib (Agg backend) is imported inside :func:`shmax_map`, so ``import stressmap.maps`` stays
+matplotlib (Agg backend) is imported inside :func:`shmax_map`, so ``import stressmap.plot.maps`` stays
 light.
 """
 

@@ -19,7 +19,7 @@ Conventions
 SHmax from principal stress axes follows Lund & Townend (2007, Geophys. J. Int. 170, 1328-1335,
 from memory): the azimuth that maximises the horizontal normal stress of the tensor with principal
 directions (s1, s2, s3) and shape ratio. We parameterise the shape by
-``phi = (sigma2 - sigma3) / (sigma1 - sigma3)`` (the same ``phi`` as :func:`stressmap.tensor.shape_ratio`);
+``phi = (sigma2 - sigma3) / (sigma1 - sigma3)`` (the same ``phi`` as :func:`stressmap.geo.tensor.shape_ratio`);
 Lund & Townend's ``R = (sigma1 - sigma2) / (sigma1 - sigma3) = 1 - phi``. The horizontal normal stress
 in the direction ``u`` is, up to a constant and a positive factor, ``(s1.u)^2 + phi (s2.u)^2``, so
 

@@ -12,7 +12,7 @@
   ``name``, ``description``, ``ridge_push``, ``drag``, ``sheet``, ``mesh`` (and ``provinces``
   if the boundary file has none).
 
-The result is a plate model document (dict) for :func:`stressmap.plate.parse_plate`, which
+The result is a plate model document (dict) for :func:`stressmap.model.plate.parse_plate`, which
 checks it.
 """
 
@@ -189,7 +189,7 @@ def load_plate_files(boundary_path, params_path=None) -> dict:
     Returns
     -------
     dict
-        A plate model document (unchecked: pass it to :func:`stressmap.plate.parse_plate`).
+        A plate model document (unchecked: pass it to :func:`stressmap.model.plate.parse_plate`).
 
     Raises
     ------

@@ -39,7 +39,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from stressmap import sphere
+from stressmap.geo import sphere
 from stressmap.constants import EARTH_RADIUS_KM
 
 __all__ = ["Mesh", "mesh_plate", "triangle_angles_deg", "facet_areas_km2"]
@@ -591,7 +591,7 @@ def mesh_plate(plate, edge_km: float | None = None, smoothing_iterations: int = 
 
     Parameters
     ----------
-    plate : stressmap.plate.PlateModel
+    plate : stressmap.model.plate.PlateModel
     edge_km : float, optional
         Target edge length on the sphere (km); default ``plate.mesh["edge_km"]``. Refinements
         of the document keep their own (finer) sizes.
@@ -605,7 +605,7 @@ def mesh_plate(plate, edge_km: float | None = None, smoothing_iterations: int = 
     Examples
     --------
     >>> import json, importlib.resources
-    >>> from stressmap.plate import parse_plate
+    >>> from stressmap.model.plate import parse_plate
     >>> doc = json.loads(importlib.resources.files("stressmap.data")
     ...                  .joinpath("demo_plate.json").read_text())
     >>> m = mesh_plate(parse_plate(doc), edge_km=100.0)

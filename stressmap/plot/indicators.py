@@ -2,7 +2,7 @@
 
 * :func:`comparison_map_png` -- predicted SHmax ticks on a grid over the plate (filled, coloured
   by regime index) with the indicators drawn on top as hollow ticks whose outline width grows
-  with the misfit, through :func:`stressmap.maps.shmax_map` (plate outline, scale bar, caption
+  with the misfit, through :func:`stressmap.plot.maps.shmax_map` (plate outline, scale bar, caption
   with the model id and the caution).
 * :func:`rose_png` -- a rose diagram (axial: each azimuth counted at theta and theta + 180) of the
   observed SHmax against the predicted SHmax at the same indicators, weighted by indicator
@@ -91,14 +91,14 @@ def comparison_map_png(model, table, *, caption=None, title=None, grid_nodes=900
     ----------
     model : stressmap.model.BuiltModel
     table : DataFrame
-        Output of :func:`stressmap.compare.compare` (``lon``, ``lat``, ``shmax_azimuth_deg``,
+        Output of :func:`stressmap.analyses.compare.compare` (``lon``, ``lat``, ``shmax_azimuth_deg``,
         ``misfit_deg``).
     caption : str, optional
         First caption line (model id, build time); the caution is always added by the map.
     grid_nodes : int
         About how many predicted ticks to draw over the plate's bounding box.
     """
-    from stressmap.maps import shmax_map
+    from stressmap.plot.maps import shmax_map
     from stressmap.model import plate_outline, predict_grid
 
     ring_lon = np.asarray(model.fields["ring_lon"].values, dtype=float)

@@ -262,7 +262,7 @@ class SheetFactor:
     displacement. For a free sheet (``remove_rigid=True``) the least-squares rigid mode is then
     subtracted from every solution, so displacements are relative to the mean rigid motion. The
     loads of a free sheet must be balanced (orthogonal to the rigid modes) for the pins to carry
-    no reaction; :mod:`stressmap.loads` provides the torque closure that guarantees it.
+    no reaction; :mod:`stressmap.fem.loads` provides the torque closure that guarantees it.
     """
 
     def __init__(self, n_dofs, free, solver, method, modes=None):
