@@ -20,6 +20,9 @@ import tomllib
 from pathlib import Path
 
 from flask import Flask
+from stressmap_api import auth, blueprints, jobs, limits, store
+from stressmap_api.jsonio import NumpyJSONProvider
+from stressmap_api.problems import register_error_handlers
 
 __all__ = ["create_app", "DEFAULTS", "API_PREFIX"]
 
@@ -76,21 +79,17 @@ def create_app(test_config: dict | None = None) -> Flask:
     app = Flask(__name__)
     app.config.update(load_config(test_config))
 
-    from stressmap_api.jsonio import NumpyJSONProvider
-    from stressmap_api.problems import register_error_handlers
 
     app.json_provider_class = NumpyJSONProvider
     app.json = NumpyJSONProvider(app)
     register_error_handlers(app)
 
-    from stressmap_api import auth, jobs, limits, store
 
     store.init_app(app)  # data directory, SQLite index, restart recovery
     jobs.init_app(app)  # bounded background worker pool
     auth.init_app(app)  # bearer token for reads (if configured) and CORS allow-list
     limits.init_app(app)  # bounded compute pool for the per-request time limit
 
-    from stressmap_api import blueprints
 
     for info in sorted(pkgutil.iter_modules(blueprints.__path__), key=lambda m: m.name):
         module = importlib.import_module(f"{blueprints.__name__}.{info.name}")

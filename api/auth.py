@@ -17,7 +17,6 @@ import functools
 import hmac
 
 from flask import current_app, request
-
 from stressmap_api.problems import ApiProblem
 
 __all__ = ["require_token", "check_token", "init_app", "PUBLIC_ENDPOINTS"]

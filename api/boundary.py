@@ -14,17 +14,17 @@ from __future__ import annotations
 import numpy as np
 
 from stressmap.constants import EARTH_RADIUS_KM
+from stressmap.fem.loads import SENSES, edge_geometry
+from stressmap.geo import sphere
+from stressmap.model import resolve_weights
+from stressmap.model.plate import parse_plate
+from stressmap.physics import forces
 
 __all__ = ["boundary_forces"]
 
 
 def boundary_forces(model, weights=None) -> dict:
     """A FeatureCollection of LineString features, one per boundary segment (document order)."""
-    from stressmap.physics import forces
-    from stressmap.geo import sphere
-    from stressmap.fem.loads import SENSES, edge_geometry
-    from stressmap.model import resolve_weights
-    from stressmap.model.plate import parse_plate
 
     plate = parse_plate(model.definition)
     w = dict(zip(model.groups, resolve_weights(model, weights).tolist()))

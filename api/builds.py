@@ -10,8 +10,12 @@ from __future__ import annotations
 
 import math
 
-from stressmap.errors import InputError, problem
 from stressmap_api.store import Store, document_digest
+
+from stressmap.errors import InputError, problem
+from stressmap.io.modeldir import write_model
+from stressmap.model import build_model
+from stressmap.model.plate import parse_plate
 
 __all__ = ["check_document", "build_and_store", "estimated_mesh_nodes", "mesh_nodes"]
 
@@ -66,7 +70,6 @@ def check_document(document, max_mesh_nodes: int) -> dict:
     :class:`~stressmap.errors.ModelValidationError` (every problem of the document) or
     :class:`~stressmap.errors.InputError` when the mesh would exceed ``max_mesh_nodes``.
     """
-    from stressmap.model.plate import parse_plate
 
     ridge_push = document.get("ridge_push") if isinstance(document, dict) else None
     if isinstance(ridge_push, dict) and ("age_grid" in ridge_push
@@ -101,8 +104,6 @@ def build_and_store(data_dir: str, model_id: str, document: dict, max_mesh_nodes
 
     Returns ``{"model_id": ..., "build_time": ...}``.
     """
-    from stressmap.model import build_model
-    from stressmap.io.modeldir import write_model
 
     store = Store(data_dir, cache_size=0)
     store.set_model_status(model_id, "building")

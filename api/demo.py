@@ -11,8 +11,11 @@ import logging
 from importlib import resources
 
 import numpy as np
-
+from stressmap_api.builds import build_and_store
 from stressmap_api.store import Store, document_digest
+
+from stressmap.model import locate
+from stressmap.model.plate import parse_plate
 
 __all__ = ["demo_document", "ensure_demo", "example_points", "example_requests"]
 
@@ -31,7 +34,6 @@ def demo_document() -> dict:
 def ensure_demo(store: Store, progress=None, max_mesh_nodes: int = 0) -> str:
     """Id of a ready demo model in ``store``: reused if the same document was built before,
     otherwise built now in this process (seconds)."""
-    from stressmap_api.builds import build_and_store
 
     document = demo_document()
     digest = document_digest(document)
@@ -39,7 +41,6 @@ def ensure_demo(store: Store, progress=None, max_mesh_nodes: int = 0) -> str:
     if found:
         _log.info("reusing demo model %s", found)
         return found
-    from stressmap.model.plate import parse_plate
 
     model_id = store.add_model(parse_plate(document).name, None, digest)
     try:
@@ -53,7 +54,6 @@ def ensure_demo(store: Store, progress=None, max_mesh_nodes: int = 0) -> str:
 
 def example_points(model, count: int = 2) -> list[list[float]]:
     """``count`` round [lon, lat] points inside the model's plate (for printed examples)."""
-    from stressmap.model import locate
 
     cand = np.array(_CANDIDATES, dtype=float)
     inside = np.asarray(locate(model, cand[:, 0], cand[:, 1])[0], dtype=bool)

@@ -35,8 +35,10 @@ import time
 from concurrent.futures import Future, ProcessPoolExecutor, ThreadPoolExecutor
 from concurrent.futures.process import BrokenProcessPool
 
+from stressmap_api.errors import JobQueueFull
+from stressmap_api.store import Store, get_store, new_id, owner_token, register_owner
+
 from stressmap.errors import InputError, StressmapError
-from stressmap_api.store import Store, new_id, owner_token, register_owner
 
 __all__ = ["JobRunner", "get_jobs", "init_app", "JobQueueFull"]
 
@@ -45,10 +47,6 @@ _EXTENSION = "stressmap_jobs"
 
 #: Minimum seconds between two progress writes to the index (the final one is always written).
 PROGRESS_INTERVAL_S = 0.2
-
-
-class JobQueueFull(StressmapError):
-    """Too many jobs are waiting; the client should retry later."""
 
 
 class _Progress:
@@ -211,7 +209,6 @@ class JobRunner:
 
 def init_app(app) -> JobRunner:
     """Create the app's job runner (``app.extensions``); needs the store set up first."""
-    from stressmap_api.store import get_store
 
     with app.app_context():
         store = get_store()

@@ -16,7 +16,6 @@ from concurrent.futures import ThreadPoolExecutor
 from concurrent.futures import TimeoutError as FutureTimeout
 
 from flask import current_app, g
-
 from stressmap_api.problems import ApiProblem
 
 __all__ = ["run_limited", "init_app"]

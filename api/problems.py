@@ -3,10 +3,9 @@
 from __future__ import annotations
 
 import logging
-import re
-from pathlib import Path
 
 from flask import Flask, Response, json, request
+from stressmap_api.errors import JobQueueFull, ModelNotReady, scrub_paths
 from werkzeug.exceptions import HTTPException
 
 from stressmap.errors import InputError, NotFoundError, StorageError
@@ -42,29 +41,6 @@ def problem_response(status: int, title: str, detail: str, errors: list[dict] | 
     return resp
 
 
-_ABS_PATH = re.compile(r"(?<![\w.:/>])/(?:[^\s'\"/:]+/)*[^\s'\":,;]+")
-
-
-def scrub_paths(text: str) -> str:
-    """``text`` with the data directory and other absolute file paths replaced by placeholders,
-    so that messages about storage say what failed without showing the server's layout.
-
-    Examples
-    --------
-    >>> scrub_paths("cannot open /srv/x/index.sqlite3: disk I/O error")
-    'cannot open <path>/index.sqlite3: disk I/O error'
-    """
-    try:
-        from flask import current_app
-
-        data_dir = str(Path(current_app.config["DATA_DIR"]).resolve())
-        text = text.replace(data_dir, "<data directory>")
-    except (RuntimeError, KeyError):  # outside an app context
-        pass
-    return _ABS_PATH.sub(lambda m: "<path>/" + m.group(0).rsplit("/", 1)[-1]
-                         if "/" in m.group(0)[1:] else "<path>", text)
-
-
 def register_error_handlers(app: Flask) -> None:
     @app.errorhandler(ApiProblem)
     def _api_problem(exc: ApiProblem):
@@ -74,8 +50,6 @@ def register_error_handlers(app: Flask) -> None:
     def _input_error(exc: InputError):
         return problem_response(422, "Invalid input", exc.message, exc.problems)
 
-    from stressmap_api.jobs import JobQueueFull
-    from stressmap_api.store import ModelNotReady
 
     @app.errorhandler(ModelNotReady)
     def _not_ready(exc: ModelNotReady):

@@ -11,6 +11,7 @@ import math
 import sys
 
 import numpy as np
+from stressmap_api.problems import ApiProblem
 
 from stressmap.constants import EARTH_RADIUS_KM
 from stressmap.errors import InputError, problem
@@ -34,7 +35,6 @@ _MAX_ERRORS = 20  # problems listed per request (the count of the rest is given)
 
 def json_body(request) -> object:
     """The request body parsed as JSON, or a 400 problem naming where the JSON breaks."""
-    from stressmap_api.problems import ApiProblem
 
     raw = request.get_data(cache=True)  # enforces MAX_CONTENT_LENGTH (413)
     if not raw.strip():

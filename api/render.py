@@ -14,6 +14,9 @@ import numpy as np
 from flask import Response, current_app
 
 from stressmap.constants import CAUTION
+from stressmap.formats import export
+from stressmap.model import plate_outline
+from stressmap.plot.maps import shmax_map
 
 __all__ = ["output_meta", "render", "MIMETYPES"]
 
@@ -58,7 +61,6 @@ def _flatten(ds):
 def render(ds, fmt: str, meta: dict, *, grid: bool, model=None, extra_properties=None,
            stem: str = "stressmap") -> Response:
     """One prediction Dataset as a response in ``fmt`` (geojson, csv, netcdf, png)."""
-    from stressmap.formats import export
 
     headers = {}
     if fmt == "geojson":
@@ -74,8 +76,6 @@ def render(ds, fmt: str, meta: dict, *, grid: bool, model=None, extra_properties
         body = export.netcdf_bytes(ds, _flat_meta(meta))
         headers["Content-Disposition"] = f'attachment; filename="{stem}.nc"'
     elif fmt == "png":
-        from stressmap.plot.maps import shmax_map
-        from stressmap.model import plate_outline
 
         lon, lat, az, ri = _flatten(ds)
         outline = plate_outline(model) if model is not None else None

@@ -38,7 +38,11 @@ from contextlib import contextmanager
 from datetime import datetime, timezone
 from pathlib import Path
 
+from stressmap_api.errors import ModelNotReady, scrub_paths
+from stressmap_api.jsonio import to_jsonable
+
 from stressmap.errors import NotFoundError, StorageError
+from stressmap.io.modeldir import read_model
 
 __all__ = [
     "ID_PATTERN",
@@ -131,17 +135,6 @@ def document_digest(document: dict) -> str:
     """sha256 hex digest of a JSON document in canonical form (sorted keys, no spaces)."""
     text = json.dumps(document, sort_keys=True, separators=(",", ":"), ensure_ascii=True)
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
-
-
-class ModelNotReady(NotFoundError):
-    """A model that exists but cannot be used yet (queued, building) or failed to build."""
-
-    def __init__(self, model_id: str, status: str, error: str | None = None):
-        self.model_id, self.status, self.error = model_id, status, error
-        detail = f"model {model_id} is {status}"
-        if error:
-            detail += f": {error}"
-        super().__init__(detail)
 
 
 def connect(db_path: str | os.PathLike) -> sqlite3.Connection:
@@ -333,7 +326,6 @@ class Store:
         meta = self.meta(model_id)
         if meta["status"] != "ready":
             raise ModelNotReady(model_id, meta["status"], meta.get("error"))
-        from stressmap.io.modeldir import read_model
 
         try:
             model = read_model(self.model_dir(model_id))
@@ -393,7 +385,6 @@ class Store:
             (utc_now(), json.dumps(result, default=_json_default), job_id))
 
     def job_failed(self, job_id: str, reason: str, errors: list[dict] | None = None) -> None:
-        from stressmap_api.problems import scrub_paths
 
         # Reasons are shown to clients (GET /jobs, /models): no server paths in them.
         reason = scrub_paths(str(reason).replace(str(self.data_dir), "<data directory>"))
@@ -542,7 +533,6 @@ def register_owner(token: str, alive: bool) -> None:
 
 
 def _json_default(obj):
-    from stressmap_api.jsonio import to_jsonable
 
     out = to_jsonable(obj)
     if out is obj:

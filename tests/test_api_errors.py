@@ -217,12 +217,12 @@ def test_time_limit_is_503_with_retry_after(make_client, model_id):
 
 
 def test_unexpected_failure_is_500_without_internals(make_client, model_id, monkeypatch, caplog):
-    import stressmap.model
+    import stressmap_api.blueprints.models as models_views
 
     def broken(*args, **kwargs):
         raise RuntimeError("secret internal state")
 
-    monkeypatch.setattr(stressmap.model, "predict_points", broken)
+    monkeypatch.setattr(models_views, "predict_points", broken)
     body = problem_of(make_client().post(f"{API}/models/{model_id}/predict",
                                          json={"points": [[-15.0, -20.0]]}), 500)
     assert "secret" not in body["detail"]

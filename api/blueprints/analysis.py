@@ -19,8 +19,6 @@ from pathlib import Path
 
 import numpy as np
 from flask import Blueprint, current_app, jsonify, request, url_for
-
-from stressmap.errors import InputError, problem
 from stressmap_api import queries
 from stressmap_api.auth import require_token
 from stressmap_api.jobs import get_jobs
@@ -28,6 +26,24 @@ from stressmap_api.limits import run_limited
 from stressmap_api.problems import ApiProblem
 from stressmap_api.render import MIMETYPES, output_meta
 from stressmap_api.store import Store, check_id, get_store, new_id
+
+from stressmap.analyses.calibrate import calibrate
+from stressmap.analyses.ensemble import (
+    DEFAULT_PERCENTILES,
+    ensemble_grid,
+    ensemble_png,
+    ensemble_points,
+    flatten_percentiles,
+    validate_distributions,
+)
+from stressmap.analyses.indicators import (
+    indicators_from_csv_text,
+    indicators_from_geojson,
+)
+from stressmap.constants import CAUTION
+from stressmap.errors import InputError, problem
+from stressmap.formats import export
+from stressmap.model import plate_outline
 
 __all__ = ["bp", "run_calibration", "run_ensemble_job", "ENSEMBLE_FILE"]
 
@@ -76,7 +92,6 @@ def _count(body: dict, key: str, default: int, upper: int | None = None) -> int:
 def _indicators(body: dict, skip_bad: bool):
     """The request's indicators: ``indicators`` (GeoJSON) or ``indicators_csv`` (CSV text), as
     ``POST /models/{id}/compare`` takes them."""
-    from stressmap.analyses.indicators import indicators_from_csv_text, indicators_from_geojson
 
     if ("indicators" in body) == ("indicators_csv" in body):
         raise InputError("give exactly one of indicators and indicators_csv",
@@ -98,7 +113,6 @@ def _indicators(body: dict, skip_bad: bool):
 
 def run_calibration(model, indicators, options: dict) -> dict:
     """Calibrate and serialise (runs on the compute pool)."""
-    from stressmap.analyses.calibrate import calibrate
 
     result = calibrate(model, indicators, **options)
     out = result.to_dict()
@@ -181,9 +195,6 @@ def run_ensemble_job(data_dir: str, model_id: str, job_id: str, spec: dict, prog
     Writes ``<data_dir>/jobs/<job_id>/ensemble.nc`` atomically (temporary file, fsync, rename)
     and returns a JSON-able summary with the links of the result.
     """
-    from stressmap.formats import export
-    from stressmap.constants import CAUTION
-    from stressmap.analyses.ensemble import ensemble_grid, ensemble_points
 
     store = Store(data_dir, cache_size=0)
     model = store.load(model_id)
@@ -248,7 +259,6 @@ def _mask_outside(ds, polygon_wkt: str):
 @bp.post("/models/<model_id>/ensembles")
 @require_token
 def create_ensemble(model_id: str):
-    from stressmap.analyses.ensemble import DEFAULT_PERCENTILES, validate_distributions
 
     check_id(model_id)
     body = _object_body()
@@ -326,9 +336,6 @@ def _load_result(path: Path):
 
 def render_ensemble(path: Path, fmt: str, meta: dict, model, props) -> tuple[bytes, dict]:
     """Body and headers of a stored ensemble in ``fmt`` (runs on the compute pool)."""
-    from stressmap.formats import export
-    from stressmap.analyses.ensemble import ensemble_png, flatten_percentiles
-    from stressmap.model import plate_outline
 
     stem = f"stressmap-{meta['model_id'][:8]}-ensemble"
     if fmt == "netcdf":

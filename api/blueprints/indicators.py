@@ -20,13 +20,26 @@ import json
 
 import numpy as np
 from flask import Blueprint, Response, current_app, jsonify, request
-
-from stressmap.constants import CAUTION
-from stressmap.errors import InputError, problem
 from stressmap_api import queries
 from stressmap_api.jsonio import to_jsonable
 from stressmap_api.limits import run_limited
 from stressmap_api.store import check_id, get_store
+
+from stressmap.analyses.compare import COMPARISON_COLUMNS, compare
+from stressmap.analyses.indicators import (
+    CONVERT_COLUMNS,
+    indicators_from_csv_text,
+    indicators_from_geojson,
+)
+from stressmap.analyses.observed import (
+    observed_geojson,
+    observed_grid,
+    observed_netcdf_bytes,
+)
+from stressmap.constants import CAUTION
+from stressmap.errors import InputError, problem
+from stressmap.io.indicators import indicators_csv, indicators_geojson
+from stressmap.plot.indicators import comparison_map_png, rose_png
 
 __all__ = ["bp", "COMPARE_FORMATS", "SMOOTH_FORMATS"]
 
@@ -83,7 +96,6 @@ def _number(value, field, default=None, integer=False):
 
 def _indicators(body):
     """Parse the indicators of a request (exactly one of ``indicators`` and ``indicators_csv``)."""
-    from stressmap.analyses.indicators import indicators_from_csv_text, indicators_from_geojson
 
     skip_bad = _flag(body.get("skip_bad"), "skip_bad")
     has_fc, has_csv = "indicators" in body, "indicators_csv" in body
@@ -106,23 +118,18 @@ def _indicators(body):
 
 
 def _compare_columns(table):
-    from stressmap.analyses.compare import COMPARISON_COLUMNS
-    from stressmap.analyses.indicators import CONVERT_COLUMNS
 
     lead = CONVERT_COLUMNS + COMPARISON_COLUMNS
     return lead + [c for c in table.columns if c not in lead and c not in ("geometry", "shmax_span_deg")]
 
 
 def _run_compare(model, gdf, weights, fmt, picture, meta):
-    from stressmap.analyses.compare import compare
-    from stressmap.io.indicators import indicators_csv, indicators_geojson
 
     table, summary = compare(model, gdf, weights=weights)
     summary["model_id"] = meta["model_id"]
     flat = table.reset_index(drop=True)
     cols = _compare_columns(flat)
     if fmt == "png":
-        from stressmap.plot.indicators import comparison_map_png, rose_png
 
         caption = f"Model {meta['model_id']}, built {meta.get('build_time') or ''}"
         if picture == "map":
@@ -167,7 +174,6 @@ def compare_model(model_id: str):
 
 
 def _run_smooth(gdf, bbox, radius_km, spacing_km, min_count, max_dispersion_deg, max_nodes, fmt):
-    from stressmap.analyses.observed import observed_geojson, observed_grid, observed_netcdf_bytes
 
     ds = observed_grid(gdf, bbox=bbox, radius_km=radius_km, spacing_km=spacing_km, min_count=min_count,
                        max_dispersion_deg=max_dispersion_deg, max_nodes=max_nodes)

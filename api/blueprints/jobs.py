@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 from flask import Blueprint, jsonify
-
 from stressmap_api.store import get_store
 
 __all__ = ["bp"]

@@ -3,9 +3,9 @@
 from __future__ import annotations
 
 from flask import Blueprint, jsonify
+from stressmap_api.openapi_doc import openapi_document
 
 from stressmap import CAUTION, __version__
-from stressmap_api.openapi_doc import openapi_document
 
 __all__ = ["bp"]
 

@@ -4,15 +4,17 @@ from __future__ import annotations
 
 import numpy as np
 from flask import Blueprint, current_app, jsonify, request, url_for
-
-from stressmap.errors import InputError, problem
 from stressmap_api import queries
 from stressmap_api.auth import require_token
+from stressmap_api.boundary import boundary_forces
 from stressmap_api.builds import build_and_store, check_document
 from stressmap_api.jobs import get_jobs
 from stressmap_api.limits import run_limited
 from stressmap_api.render import output_meta, render
 from stressmap_api.store import get_store, new_id
+
+from stressmap.errors import InputError, problem
+from stressmap.model import predict_grid, predict_points
 
 __all__ = ["bp", "predict_region", "segment_forces"]
 
@@ -73,7 +75,6 @@ def delete_model(model_id: str):
 
 def segment_forces(model, weights=None) -> dict:
     """Boundary segments with kinds and applied edge forces (see :mod:`stressmap_api.boundary`)."""
-    from stressmap_api.boundary import boundary_forces
 
     return boundary_forces(model, weights)
 
@@ -94,7 +95,6 @@ def get_boundary(model_id: str):
 
 def predict_region(model, bbox, spacing_km, polygon=None, weights=None):
     """Grid prediction over a bbox; nodes outside ``polygon`` (if given) are masked."""
-    from stressmap.model import predict_grid
 
     ds = predict_grid(model, bbox=bbox, spacing_km=spacing_km, weights=weights)
     if polygon is not None:
@@ -126,7 +126,6 @@ def _mask_grid(ds, keep_lat_lon: np.ndarray):
 
 
 def _predict_points(model, lon, lat, weights):
-    from stressmap.model import predict_points
 
     return predict_points(model, lon, lat, weights=weights)
 

@@ -11,11 +11,15 @@ from __future__ import annotations
 import json
 
 from flask import Blueprint, Response, current_app, jsonify, request
-
-from stressmap.errors import InputError, problem
 from stressmap_api import queries
 from stressmap_api.limits import run_limited
 from stressmap_api.store import check_id, get_store
+
+from stressmap.analyses import sitescreen
+from stressmap.analyses.sitescreen import parse_request
+from stressmap.constants import CAUTION
+from stressmap.errors import InputError, problem
+from stressmap.plot import screening as plot_screening
 
 __all__ = ["bp", "FORMATS", "PICTURES", "MAX_PLANE_SAMPLES"]
 
@@ -38,7 +42,6 @@ def _choice(value, options, field):
 
 
 def _run(req, model, model_info, fmt, picture):
-    from stressmap.analyses import sitescreen
 
     result = sitescreen.screen(req, model, model_info)
     if fmt == "json":
@@ -47,14 +50,12 @@ def _run(req, model, model_info, fmt, picture):
         return "geojson", sitescreen.result_geojson(result)
     if fmt == "csv":
         return "csv", sitescreen.result_csv(result)
-    from stressmap.plot import screening as plot_screening
 
     return "png", getattr(plot_screening, PICTURES[picture])(result)
 
 
 @bp.post("/screen")
 def screen():
-    from stressmap.analyses.sitescreen import parse_request
 
     body = queries.json_body(request)
     if not isinstance(body, dict):
@@ -98,7 +99,6 @@ def screen():
     if kind == "csv":
         return Response(payload, status=200, content_type="text/csv; charset=utf-8",
                         headers={"Content-Disposition": f'attachment; filename="{stem}.csv"'})
-    from stressmap.constants import CAUTION
 
     return Response(payload, status=200, content_type="image/png",
                     headers={"Content-Disposition": f'inline; filename="{stem}-{picture}.png"',

@@ -39,6 +39,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from stressmap.errors import InputError, problem
+from stressmap.geo.circular import random_misfit_significance
+from stressmap.model import resolve_weights, unit_stress_at
 
 __all__ = [
     "CalibrationResult",
@@ -656,7 +658,6 @@ def calibrate_arrays(unit, observed_deg, kappa=None, *, groups=None, default_wei
     ci[ref] = w0[ref]
 
     # Significance: calibrate the same model to uniformly random azimuths.
-    from stressmap.geo.circular import random_misfit_significance
 
     _, z_after, p_analytic = random_misfit_significance(np.abs(residuals), kappa)
     significance = {"random_misfit_deg": 45.0, "n_random": int(n_random), "seed": int(seed),
@@ -767,7 +768,6 @@ def calibrate(model, indicators, *, bounds=None, reference=None, n_starts=8, n_b
     Other parameters are those of :func:`calibrate_arrays`. Indicators outside the plate are left
     out (their number is in ``settings["n_outside"]``).
     """
-    from stressmap.model import resolve_weights, unit_stress_at
 
     lon, lat, az, kappa = _indicator_columns(indicators)
     inside, unit = unit_stress_at(model, lon, lat)

@@ -19,8 +19,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from stressmap.geo import circular
 from stressmap.constants import CAUTION
+from stressmap.geo import circular
+from stressmap.model import locate, predict_points, resolve_weights
 
 __all__ = [
     "misfit_deg",
@@ -135,7 +136,6 @@ def provinces_at(model, lon, lat):
     Uses the facet that holds the point and the province index of that facet stored with the
     model (``element_province``), so the answer follows the mesh exactly.
     """
-    from stressmap.model import locate
 
     inside, triangle, _ = locate(model, lon, lat)
     feats = (model.definition.get("provinces") or {}).get("features") or []
@@ -169,7 +169,6 @@ def compare(model, indicators, weights=None):
     """
     import pandas as pd
 
-    from stressmap.model import predict_points, resolve_weights
 
     lon = indicators["lon"].to_numpy(float)
     lat = indicators["lat"].to_numpy(float)

@@ -33,7 +33,13 @@ from concurrent.futures import ThreadPoolExecutor, as_completed
 
 import numpy as np
 
+from stressmap.constants import CAUTION, EARTH_RADIUS_KM
 from stressmap.errors import InputError, problem
+from stressmap.geo.tensor import REGIMES
+from stressmap.model import resolve_weights, unit_stress_at
+from stressmap.model.plate import parse_plate
+from stressmap.physics.forces import slab_pull_n_per_m
+from stressmap.plot.maps import shmax_map
 
 __all__ = [
     "DISTRIBUTIONS",
@@ -224,7 +230,6 @@ def parameter_to_weight(parameter: str, values, reference: float, slab_depth_km:
     if parameter == "pull_fraction":
         return values / reference
     if parameter == "slab_age_myr":
-        from stressmap.physics.forces import slab_pull_n_per_m
 
         ref = slab_pull_n_per_m(float(reference), slab_depth_km, 1.0, params)
         return np.asarray(slab_pull_n_per_m(values, slab_depth_km, 1.0, params), float) / ref
@@ -580,7 +585,8 @@ def ensemble_statistics(unit, weights, percentiles=DEFAULT_PERCENTILES, *, memor
 
 def _run_dask(scheduler, unit, weights, q, member_chunk, slices, store, report):
     try:
-        from distributed import Client, as_completed as dask_completed
+        from distributed import Client
+        from distributed import as_completed as dask_completed
     except ImportError as exc:  # pragma: no cover - depends on the environment
         raise InputError("running on a Dask cluster needs the 'dask' extra",
                          [problem("pip install 'stressmap[dask]'", field="scheduler")]) from exc
@@ -627,7 +633,6 @@ def grid_coordinates(bbox, spacing_km):
     >>> lon.round(3).tolist()
     [179.5, 180.0, 180.5]
     """
-    from stressmap.constants import EARTH_RADIUS_KM
 
     problems = []
     try:
@@ -660,7 +665,6 @@ def _group_references(model) -> dict:
     segments that give them (a scenario then scales every such segment of the group alike).
     """
     try:
-        from stressmap.model.plate import parse_plate
 
         plate = parse_plate(model.definition)
     except Exception:  # noqa: BLE001 - references are optional; specs may give them
@@ -677,7 +681,6 @@ def _group_references(model) -> dict:
 
 
 def _weights_for(model, members, distributions, seed):
-    from stressmap.model import resolve_weights
 
     groups = list(model.groups)
     merged = dict(distributions or {})
@@ -690,7 +693,6 @@ def _weights_for(model, members, distributions, seed):
 def _attrs(members, seed, distributions):
     import json
 
-    from stressmap.constants import CAUTION
 
     return {
         "title": "stressmap ensemble of load-group weights",
@@ -728,8 +730,6 @@ def ensemble_points(model, lon, lat, members=1000, distributions=None, seed=0,
     """
     import xarray as xr
 
-    from stressmap.model import unit_stress_at
-    from stressmap.geo.tensor import REGIMES
 
     lon = np.atleast_1d(np.asarray(lon, dtype=float))
     lat = np.atleast_1d(np.asarray(lat, dtype=float))
@@ -823,7 +823,6 @@ def flatten_percentiles(ds):
 def ensemble_png(ds, outline=None, title=None, caption=None) -> bytes:
     """PNG map of an ensemble: mean SHmax ticks coloured by the mean A-phi, with the axial
     standard deviation drawn as a fan around each tick (:func:`stressmap.plot.maps.shmax_map`)."""
-    from stressmap.plot.maps import shmax_map
 
     if "point" in ds.dims:
         lon = np.asarray(ds["lon"].values, float)

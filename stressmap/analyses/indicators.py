@@ -37,9 +37,9 @@ import logging
 
 import numpy as np
 
-from stressmap.geo import circular
-from stressmap.geo import focal
 from stressmap.errors import IndicatorFileError, problem
+from stressmap.geo import circular, focal
+from stressmap.io.indicators import read_table, table_from_csv_text, table_from_geojson
 
 __all__ = [
     "TYPES",
@@ -359,7 +359,6 @@ def read_indicators(path, skip_bad: bool = False):
     """
     from pathlib import Path
 
-    from stressmap.io.indicators import read_table
 
     table, probs = read_table(path)
     return prepare_indicators(table, skip_bad=skip_bad, problems=probs, name=Path(path).name)
@@ -367,7 +366,6 @@ def read_indicators(path, skip_bad: bool = False):
 
 def indicators_from_geojson(doc, skip_bad: bool = False, field: str = "indicators"):
     """Indicators from a GeoJSON FeatureCollection dict (as sent to the HTTP service)."""
-    from stressmap.io.indicators import table_from_geojson
 
     table, probs = table_from_geojson(doc, field=field)
     return prepare_indicators(table, skip_bad=skip_bad, problems=probs, name=field)
@@ -383,7 +381,6 @@ def indicators_from_csv_text(text: str, skip_bad: bool = False, name: str = "ind
     >>> gdf["shmax_azimuth_deg"].tolist(), gdf["sigma_deg"].tolist(), gdf["weight"].tolist()
     ([100.0, 10.0], [20.0, 20.0], [1.0, 1.0])
     """
-    from stressmap.io.indicators import table_from_csv_text
 
     table, probs = table_from_csv_text(text, name)
     return prepare_indicators(table, skip_bad=skip_bad, problems=probs, name=name)

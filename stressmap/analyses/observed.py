@@ -20,9 +20,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from stressmap.geo import circular
 from stressmap.constants import CAUTION, EARTH_RADIUS_KM
 from stressmap.errors import InputError, problem
+from stressmap.formats.export import netcdf_bytes
+from stressmap.geo import circular
 
 __all__ = [
     "STATUS",
@@ -299,6 +300,5 @@ def observed_geojson(ds, meta: dict | None = None, with_empty: bool = False) -> 
 
 def observed_netcdf_bytes(ds, meta: dict | None = None) -> bytes:
     """The grid as CF netCDF-4 bytes (via :func:`stressmap.formats.export.netcdf_bytes`)."""
-    from stressmap.formats.export import netcdf_bytes
 
     return netcdf_bytes(ds, meta)

@@ -32,8 +32,15 @@ import numpy as np
 
 from stressmap.analyses import faults as fl
 from stressmap.analyses import screening as sc
-from stressmap.constants import CAUTION
+from stressmap.analyses.compare import compare
+from stressmap.analyses.ensemble import ensemble_points
+from stressmap.analyses.indicators import indicators_from_geojson
+from stressmap.constants import CAUTION, EARTH_RADIUS_M
 from stressmap.errors import InputError, OutsidePlateError, problem
+from stressmap.geo.circular import axial_std_deg
+from stressmap.geo.tensor import describe
+from stressmap.io.faults import faults_from_geojson
+from stressmap.model import predict_points, unit_stress_at
 
 __all__ = [
     "CAUTION_SUFFIX",
@@ -252,7 +259,6 @@ def parse_request(doc: dict) -> ScreenRequest:
     ...
     stressmap.errors.InputError: must be > 0.0, got -1.0
     """
-    from stressmap.io.faults import faults_from_geojson
 
     if not isinstance(doc, dict):
         raise InputError("the screening request must be a JSON object",
@@ -410,7 +416,6 @@ def parse_request(doc: dict) -> ScreenRequest:
         dists = None
     indicators = unc.get("indicators")
     if indicators is not None and isinstance(indicators, dict):
-        from stressmap.analyses.indicators import indicators_from_geojson
 
         try:
             indicators = indicators_from_geojson(indicators, field="uncertainty.indicators")
@@ -457,7 +462,6 @@ def orientation_from_model(model, lon: float, lat: float, weights=None) -> dict:
 
     Raises :class:`OutsidePlateError` when the site is outside the plate.
     """
-    from stressmap.model import predict_points
 
     ds = predict_points(model, np.array([lon]), np.array([lat]), weights=weights)
     inside = bool(np.asarray(ds["inside"].values).reshape(-1)[0])
@@ -492,9 +496,6 @@ def ensemble_orientation(model, lon: float, lat: float, members: int, seed: int 
     -------
     dict of (M,) arrays: ``shmax_azimuth_deg``, ``regime_code``, ``shape_ratio``.
     """
-    from stressmap.analyses.ensemble import ensemble_points
-    from stressmap.model import unit_stress_at
-    from stressmap.geo.tensor import describe
 
     ds = ensemble_points(model, [lon], [lat], members=members, distributions=distributions,
                          seed=seed)
@@ -526,7 +527,6 @@ def indicator_spread_deg(indicators, lon: float, lat: float, radius_km: float = 
     """
     from pyproj import Geod
 
-    from stressmap.constants import EARTH_RADIUS_M
 
     ilon = indicators["lon"].to_numpy(float)
     ilat = indicators["lat"].to_numpy(float)
@@ -539,7 +539,6 @@ def indicator_spread_deg(indicators, lon: float, lat: float, radius_km: float = 
         scope = f"all {int(near.sum())} indicators (fewer than 3 within {radius_km:g} km)"
     chosen = indicators[near]
     if model is not None:
-        from stressmap.analyses.compare import compare
 
         table, _ = compare(model, chosen, weights)
         ok = table["inside"].to_numpy(bool) & np.isfinite(table["misfit_deg"].to_numpy(float))
@@ -552,7 +551,6 @@ def indicator_spread_deg(indicators, lon: float, lat: float, radius_km: float = 
         sigma = float(np.sqrt(np.sum(w * m**2) / np.sum(w)))
         how = f"indicator-derived: weighted RMS misfit of the model against {scope}"
     else:
-        from stressmap.geo.circular import axial_std_deg
 
         az = chosen["shmax_azimuth_deg"].to_numpy(float)
         w = chosen["weight"].to_numpy(float) if "weight" in chosen else None
@@ -888,7 +886,6 @@ def _sample(result: ScreenResult, model, profile, rho_mean, code, phi, az, orien
              else "") + " per member")
         info["ensemble_members"] = members
         info["ensemble_distributions"] = dists or model_dists
-        from stressmap.geo.circular import axial_std_deg
 
         info["ensemble_azimuth_std_deg"] = float(axial_std_deg(ens["shmax_azimuth_deg"]))
     else:

@@ -6,8 +6,22 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
-from stressmap.errors import InputError, problem
+from stressmap import CAUTION
+from stressmap.analyses.calibrate import calibrate
+from stressmap.analyses.ensemble import (
+    ensemble_grid,
+    ensemble_png,
+    ensemble_points,
+    flatten_percentiles,
+)
+from stressmap.analyses.indicators import read_indicators
 from stressmap.cli._progress import progress_bar
+from stressmap.cli.model import parse_bbox
+from stressmap.errors import InputError, problem
+from stressmap.formats import export
+from stressmap.io.modeldir import read_model
+from stressmap.io.points import read_points
+from stressmap.model import plate_outline
 
 __all__ = ["register", "parse_bounds", "parse_vary", "parse_percentiles", "load_config"]
 
@@ -125,7 +139,6 @@ def load_config(path: str | None) -> dict:
 
 
 def _read_model(path: str):
-    from stressmap.io.modeldir import read_model
 
     if not Path(path).is_dir():
         raise InputError(f"model directory not found: {path}",
@@ -135,9 +148,6 @@ def _read_model(path: str):
 
 
 def _cmd_calibrate(args) -> int:
-    from stressmap import CAUTION
-    from stressmap.analyses.calibrate import calibrate
-    from stressmap.analyses.indicators import read_indicators
 
     config = dict(load_config(args.config).get("calibration") or {})
     bounds = dict(config.get("bounds") or {})
@@ -198,15 +208,6 @@ def _cmd_calibrate(args) -> int:
 
 
 def _cmd_ensemble(args) -> int:
-    from stressmap import CAUTION
-    from stressmap.formats import export
-    from stressmap.analyses.ensemble import (
-        ensemble_grid,
-        ensemble_png,
-        ensemble_points,
-        flatten_percentiles,
-    )
-    from stressmap.model import plate_outline
 
     out = Path(args.output)
     fmt = out.suffix.lower().lstrip(".")
@@ -232,7 +233,6 @@ def _cmd_ensemble(args) -> int:
     bar, update = progress_bar("ensemble")
     try:
         if args.points:
-            from stressmap.io.points import read_points
 
             lon, lat, props = read_points(args.points)
             ds = ensemble_points(model, lon, lat, progress=update, **kwargs)
@@ -240,7 +240,6 @@ def _cmd_ensemble(args) -> int:
             if args.spacing_km is None:
                 raise InputError("--bbox needs --spacing-km",
                                  [problem("required with --bbox", field="--spacing-km")])
-            from stressmap.cli.model import parse_bbox
 
             props = None
             ds = ensemble_grid(model, parse_bbox(args.bbox), args.spacing_km, progress=update,

@@ -15,9 +15,8 @@ import math
 import tomllib
 from pathlib import Path
 
-from stressmap.physics import forces
-from stressmap.physics import thermal
 from stressmap.errors import InputError, problem
+from stressmap.physics import forces, thermal
 
 __all__ = ["register", "calculate", "format_table"]
 

@@ -22,14 +22,24 @@ import json
 import sys
 from pathlib import Path
 
+from stressmap.analyses.compare import COMPARISON_COLUMNS, compare
+from stressmap.analyses.indicators import CONVERT_COLUMNS, read_indicators, summarise
+from stressmap.analyses.observed import (
+    observed_geojson,
+    observed_grid,
+    observed_netcdf_bytes,
+)
+from stressmap.cli.model import parse_bbox, parse_weights
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
+from stressmap.io.indicators import write_indicators
+from stressmap.io.modeldir import read_model
+from stressmap.plot.indicators import comparison_map_png, rose_png
 
 __all__ = ["register", "summary_text"]
 
 
 def _read(args):
-    from stressmap.analyses.indicators import read_indicators
 
     gdf = read_indicators(args.file, skip_bad=args.skip_bad)
     skipped = gdf.attrs.get("skipped") or []
@@ -48,8 +58,6 @@ def _output_columns(gdf, leading):
 
 
 def _cmd_convert(args) -> int:
-    from stressmap.analyses.indicators import CONVERT_COLUMNS
-    from stressmap.io.indicators import write_indicators
 
     out = Path(args.output)
     if out.suffix.lower() not in (".csv", ".geojson", ".json"):
@@ -66,7 +74,6 @@ def _fmt(v, spec=".1f"):
 
 
 def _cmd_summarise(args) -> int:
-    from stressmap.analyses.indicators import summarise
 
     gdf = _read(args)
     s = summarise(gdf)
@@ -99,8 +106,6 @@ def _nan_to_none(obj):
 
 
 def _cmd_smooth(args) -> int:
-    from stressmap.cli.model import parse_bbox
-    from stressmap.analyses.observed import observed_geojson, observed_grid, observed_netcdf_bytes
 
     gdf = _read(args)
     ds = observed_grid(gdf, bbox=parse_bbox(args.bbox), radius_km=args.radius_km,
@@ -154,11 +159,6 @@ def summary_text(summary: dict) -> str:
 
 
 def _cmd_compare(args) -> int:
-    from stressmap.cli.model import parse_weights
-    from stressmap.analyses.compare import COMPARISON_COLUMNS, compare
-    from stressmap.analyses.indicators import CONVERT_COLUMNS
-    from stressmap.io.indicators import write_indicators
-    from stressmap.io.modeldir import read_model
 
     model_dir = Path(args.model_dir)
     if not model_dir.is_dir():
@@ -181,7 +181,6 @@ def _cmd_compare(args) -> int:
     (out / "summary.json").write_text(json.dumps(_nan_to_none(summary), indent=2), encoding="utf-8")
     written = ["indicators.geojson", "indicators.csv", "summary.json"]
     if not args.no_pictures:
-        from stressmap.plot.indicators import comparison_map_png, rose_png
 
         caption = f"Model {model_id}, built {summary.get('model_build_time', '')}"
         (out / "map.png").write_bytes(comparison_map_png(model, table, caption=caption))

@@ -5,8 +5,14 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
-from stressmap.errors import InputError, problem
+from stressmap import CAUTION
 from stressmap.cli._progress import progress_bar
+from stressmap.errors import InputError, problem
+from stressmap.formats import export
+from stressmap.io.modeldir import read_model, write_model
+from stressmap.io.plate_files import load_plate_files
+from stressmap.io.points import read_points
+from stressmap.model import build_model, predict_grid, predict_points
 
 __all__ = ["register", "parse_weights", "parse_bbox", "load_document"]
 
@@ -63,7 +69,6 @@ def load_document(path: str, params: str | None = None) -> dict:
     if not p.is_file():
         raise InputError(f"model file not found: {path}", [problem("file not found", field=path)])
     if params is not None or p.suffix.lower() in (".gpkg", ".geojson"):
-        from stressmap.io.plate_files import load_plate_files
 
         return load_plate_files(p, params)
     try:
@@ -74,8 +79,6 @@ def load_document(path: str, params: str | None = None) -> dict:
 
 
 def _cmd_build(args) -> int:
-    from stressmap.model import build_model
-    from stressmap.io.modeldir import write_model
 
     document = load_document(args.model, args.params)
     bar, update = progress_bar("build")
@@ -95,11 +98,6 @@ def _cmd_build(args) -> int:
 
 
 def _cmd_predict(args) -> int:
-    from stressmap import CAUTION
-    from stressmap.formats import export
-    from stressmap.model import predict_grid, predict_points
-    from stressmap.io.modeldir import read_model
-    from stressmap.io.points import read_points
 
     model = read_model(args.model_dir)
     weights = parse_weights(args.weights)

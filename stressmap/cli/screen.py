@@ -11,7 +11,21 @@ import json
 import math
 from pathlib import Path
 
+from stressmap.analyses.indicators import read_indicators
+from stressmap.analyses.sitescreen import (
+    parse_plane_text,
+    parse_request,
+    parse_site_text,
+    result_csv,
+    result_geojson,
+    result_json,
+    screen,
+)
+from stressmap.cli.model import parse_weights
 from stressmap.errors import InputError, problem
+from stressmap.io.faults import read_fault_file
+from stressmap.io.modeldir import read_model
+from stressmap.plot import screening as plot_screening
 
 __all__ = ["register", "build_request", "read_density_profile", "parse_pair", "format_text"]
 
@@ -67,9 +81,6 @@ def read_density_profile(path) -> dict:
 
 def build_request(args) -> dict:
     """Turn parsed options into the shared request document (:func:`sitescreen.parse_request`)."""
-    from stressmap.cli.model import parse_weights
-    from stressmap.io.faults import read_fault_file
-    from stressmap.analyses.sitescreen import parse_plane_text, parse_site_text
 
     doc: dict = {"site": list(parse_site_text(args.site)), "depth_km": args.depth_km}
     for key in ("shmax_azimuth_deg", "regime", "shape_ratio", "friction", "cohesion_mpa",
@@ -112,7 +123,6 @@ def build_request(args) -> dict:
         if value is not None:
             unc[key] = value
     if args.indicators:
-        from stressmap.analyses.indicators import read_indicators
 
         unc["indicators"] = read_indicators(args.indicators)
     if args.indicator_radius_km is not None:
@@ -192,14 +202,11 @@ def format_text(doc: dict) -> str:
 
 
 def _run(args) -> int:
-    from stressmap.analyses.sitescreen import (parse_request, result_csv, result_geojson, result_json,
-                                      screen)
 
     doc = build_request(args)
     req = parse_request(doc)
     model = model_info = None
     if args.model:
-        from stressmap.io.modeldir import read_model
 
         model = read_model(args.model)
         summary = getattr(model, "summary", {}) or {}
@@ -215,7 +222,6 @@ def _run(args) -> int:
     pictures = (("mohr_png", "mohr_png"), ("polygon_png", "polygon_png"),
                 ("map_png", "fault_map_png"))
     if any(getattr(args, opt) for opt, _ in pictures):
-        from stressmap.plot import screening as plot_screening
 
         for opt, fn in pictures:
             target = getattr(args, opt)

@@ -12,8 +12,18 @@ import signal
 import tomllib
 from pathlib import Path
 
-from stressmap.errors import InputError, StressmapError, problem
+from stressmap_api import create_app
+from stressmap_api.demo import ensure_demo, example_points, example_requests
+from stressmap_api.jobs import get_jobs
+from stressmap_api.store import get_store
+
+from stressmap import CAUTION
 from stressmap.cli._progress import progress_bar
+from stressmap.errors import InputError, StressmapError, problem
+from stressmap.formats import export
+from stressmap.io.modeldir import write_model
+from stressmap.model import build_model, plate_outline, predict_grid
+from stressmap.plot.maps import shmax_map
 
 __all__ = ["register", "load_server_config", "SERVER_DEFAULTS"]
 
@@ -46,10 +56,6 @@ def load_server_config(path: str | None = None) -> dict:
 def _cmd_serve(args) -> int:
     from waitress import create_server
 
-    from stressmap_api import create_app
-    from stressmap_api.demo import ensure_demo, example_points, example_requests
-    from stressmap_api.jobs import get_jobs
-    from stressmap_api.store import get_store
 
     server_cfg = load_server_config(args.server_config)
     if args.host:
@@ -116,11 +122,6 @@ def _cmd_serve(args) -> int:
 
 
 def _cmd_demo(args) -> int:
-    from stressmap import CAUTION
-    from stressmap.formats import export
-    from stressmap.plot.maps import shmax_map
-    from stressmap.model import build_model, plate_outline, predict_grid
-    from stressmap.io.modeldir import write_model
 
     if not (args.spacing_km > 0 and math.isfinite(args.spacing_km)):
         raise InputError("--spacing-km must be a positive number",

@@ -20,6 +20,10 @@ from pathlib import Path
 
 import numpy as np
 
+from stressmap.geo import focal
+from stressmap.geo.sphere import great_circle_distance_km
+from stressmap.model import build_model, predict_points
+
 __all__ = ["make_demo_indicators", "SEED", "COUNTS"]
 
 SEED = 20261201
@@ -53,7 +57,6 @@ HEADER = (
 
 
 def _inside_points(model, n, rng, lon_range=(-37.0, 12.0), lat_range=(-37.0, 0.0)):
-    from stressmap.model import predict_points
 
     lon = rng.uniform(*lon_range, 6 * n)
     lat = rng.uniform(*lat_range, 6 * n)
@@ -67,7 +70,6 @@ def _inside_points(model, n, rng, lon_range=(-37.0, 12.0), lat_range=(-37.0, 0.0
 
 def _mechanisms(shmax, regime, rng):
     """Strike, dip, rake of double couples whose axes match SHmax and the regime (with noise)."""
-    from stressmap.geo import focal
 
     n = shmax.size
     small = rng.uniform(0.0, 12.0, n)
@@ -90,8 +92,6 @@ def make_demo_indicators(model, seed: int = SEED):
     """The fictional indicator table (pandas DataFrame) drawn from ``model``'s predicted field."""
     import pandas as pd
 
-    from stressmap.model import predict_points
-    from stressmap.geo.sphere import great_circle_distance_km
 
     rng = np.random.default_rng(seed)
     frames = []
@@ -158,7 +158,6 @@ def make_demo_indicators(model, seed: int = SEED):
 
 
 def main(path: Path | None = None) -> Path:
-    from stressmap.model import build_model
 
     logging.basicConfig(level=logging.INFO)
     doc = json.loads(resources.files("stressmap.data").joinpath("demo_plate.json").read_text("utf-8"))

@@ -39,8 +39,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from stressmap.geo import sphere
 from stressmap.constants import EARTH_RADIUS_KM
+from stressmap.errors import InputError, problem
+from stressmap.geo import sphere
 
 __all__ = ["Mesh", "mesh_plate", "triangle_angles_deg", "facet_areas_km2"]
 
@@ -617,7 +618,6 @@ def mesh_plate(plate, edge_km: float | None = None, smoothing_iterations: int = 
     t0 = time.perf_counter()
     edge = float(edge_km if edge_km is not None else plate.mesh["edge_km"])
     if not np.isfinite(edge) or edge <= 0:
-        from stressmap.errors import InputError, problem
 
         raise InputError(f"edge_km must be a positive number, got {edge_km!r}",
                          [problem(f"edge_km must be a positive number, got {edge_km!r}", field="edge_km")])

@@ -16,6 +16,7 @@ import uuid
 from pathlib import Path
 
 from stressmap.errors import NotFoundError, StorageError
+from stressmap.model import BuiltModel
 
 __all__ = ["write_model", "read_model", "MODEL_FILES", "fsync_dir"]
 
@@ -92,7 +93,6 @@ def read_model(directory):
     """Read a model directory written by :func:`write_model` into a ``BuiltModel``."""
     import xarray as xr
 
-    from stressmap.model import BuiltModel
 
     path = Path(directory)
     if not path.is_dir():

@@ -5,8 +5,8 @@ Submodules: :mod:`~stressmap.model.plate` (document parsing and ring geometry),
 :mod:`~stressmap.model.predict` (weighted fields at query points).
 """
 
-from stressmap.model.built import COMPONENTS, MAX_GRID_POINTS, BuiltModel
 from stressmap.model.build import build_model
+from stressmap.model.built import COMPONENTS, MAX_GRID_POINTS, BuiltModel
 from stressmap.model.predict import (
     locate,
     plate_outline,

@@ -27,11 +27,14 @@ import time
 
 import numpy as np
 
-from stressmap.fem import loads as _loads
-from stressmap.fem import sheet as _sheet
 from stressmap.constants import CAUTION, EARTH_RADIUS_KM, EARTH_RADIUS_M, PA_PER_MPA
 from stressmap.errors import InputError, ModelValidationError, problem
-from stressmap.model.built import BuiltModel, COMPONENTS
+from stressmap.fem import loads as _loads
+from stressmap.fem import mesh as _mesh
+from stressmap.fem import sheet as _sheet
+from stressmap.model import plate as _plate
+from stressmap.model.built import COMPONENTS, BuiltModel
+from stressmap.physics import forces
 
 log = logging.getLogger(__name__)
 
@@ -50,7 +53,6 @@ def _finite_or_none(x):
 
 def _segment_loads(plate, mesh, groups):
     """Edge normal and shear line forces (k,) and the group index (k,) of every boundary edge."""
-    from stressmap.physics import forces
 
     k = mesh.boundary_edges.shape[0]
     normal = np.zeros(k)
@@ -168,7 +170,6 @@ def _age_grid_at(ridge_push, lon, lat):
 def _ridge_body_forces(plate, mesh, sheet, xyz_unit, groups):
     """Distributed ridge push: nodal forces (G, n, 3) from the gradient of the ridge-push
     potential F(age) over the oceanic lithosphere."""
-    from stressmap.physics import forces
 
     out = np.zeros((len(groups), mesh.n_nodes, 3))
     ridge_segs = [s for s in plate.segments if s.kind == "ridge"
@@ -244,8 +245,6 @@ def build_model(document: dict, progress=None) -> BuiltModel:
     """
     import xarray as xr
 
-    from stressmap.fem import mesh as _mesh
-    from stressmap.model import plate as _plate
 
     def report(fraction, message):
         log.debug("build %.0f%%: %s", 100 * fraction, message)

@@ -31,9 +31,11 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from stressmap.geo import sphere
 from stressmap.constants import EARTH_RADIUS_KM
 from stressmap.errors import ModelValidationError, problem
+from stressmap.geo import sphere
+from stressmap.io.plate_files import load_plate_files as _load
+from stressmap.physics.forces import load_defaults
 
 __all__ = [
     "KINDS",
@@ -98,7 +100,6 @@ def plate_defaults() -> dict:
     >>> d["drag"]["closure"], d["ridge_push"]["mode"]
     ('torque_balance', 'edge')
     """
-    from stressmap.physics.forces import load_defaults
 
     loaded = load_defaults()
     return {table: {k: loaded[table][k] for k in keys} for table, keys in _DEFAULT_FIELDS.items()}
@@ -900,6 +901,5 @@ def load_plate_files(boundary_path, params_path=None) -> dict:
     Thin wrapper over :func:`stressmap.io.plate_files.load_plate_files` (file reading lives in the I/O
     module); see there.
     """
-    from stressmap.io.plate_files import load_plate_files as _load
 
     return _load(boundary_path, params_path)

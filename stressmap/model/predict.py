@@ -18,7 +18,7 @@ import numpy as np
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
 from stressmap.geo.tensor import describe
-from stressmap.model.built import BuiltModel, MAX_GRID_POINTS, _KM_PER_DEG
+from stressmap.model.built import _KM_PER_DEG, MAX_GRID_POINTS, BuiltModel
 
 log = logging.getLogger(__name__)
 

@@ -46,9 +46,9 @@ from collections.abc import Mapping
 import numpy as np
 from scipy import integrate
 
-from stressmap.physics import thermal
 from stressmap.constants import G_M_S2, M_PER_S_PER_MM_PER_YR, SECONDS_PER_MYR
 from stressmap.errors import InputError, problem
+from stressmap.physics import thermal
 from stressmap.physics.thermal import load_defaults, resolve_params
 
 __all__ = [

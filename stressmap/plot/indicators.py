@@ -19,6 +19,8 @@ import textwrap
 import numpy as np
 
 from stressmap.constants import CAUTION
+from stressmap.model import plate_outline, predict_grid
+from stressmap.plot.maps import shmax_map
 
 __all__ = ["comparison_map_png", "rose_png", "rose_counts"]
 
@@ -98,8 +100,6 @@ def comparison_map_png(model, table, *, caption=None, title=None, grid_nodes=900
     grid_nodes : int
         About how many predicted ticks to draw over the plate's bounding box.
     """
-    from stressmap.plot.maps import shmax_map
-    from stressmap.model import plate_outline, predict_grid
 
     ring_lon = np.asarray(model.fields["ring_lon"].values, dtype=float)
     ring_lat = np.asarray(model.fields["ring_lat"].values, dtype=float)

@@ -194,7 +194,6 @@ def shmax_map(lon, lat, azimuth_deg, regime_index, outline=None, *, observed=Non
     True
     """
     import matplotlib
-
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.cm import ScalarMappable
     from matplotlib.collections import LineCollection, PolyCollection

@@ -24,6 +24,7 @@ import textwrap
 
 import numpy as np
 
+from stressmap.analyses.screening import stress_polygon
 from stressmap.constants import CAUTION
 
 __all__ = [
@@ -149,7 +150,6 @@ def polygon_figure(result):
     ax.text((sv + ceiling) / 2 - 0.06 * (ceiling - sv), (sv + 2 * ceiling) / 3 + 0.05 *
             (ceiling - sv), "RF", ha="center", fontsize=10, color="0.3")
     if result.samples is not None:
-        from stressmap.analyses.screening import stress_polygon
 
         smp = result.samples
         mu_lo, mu_hi = float(np.min(smp["friction"])), float(np.max(smp["friction"]))
