@@ -15,7 +15,7 @@ from stressmap.cli import main
 from stressmap.constants import CAUTION
 from stressmap.analyses.indicators import CONVERT_COLUMNS, read_indicators
 
-DATA = Path(__file__).parent / "data"
+DATA = Path(__file__).parents[1] / "data"
 SMALL = DATA / "indicators_small.csv"
 BROKEN = DATA / "indicators_broken.csv"
 DEMO = Path(str(resources.files("stressmap.data").joinpath("demo_indicators.csv")))

@@ -25,7 +25,7 @@ from stressmap.io.plate_files import load_plate_files
 
 pyproj = pytest.importorskip("pyproj")
 GEOD = pyproj.Geod(a=6371e3, b=6371e3)
-DATA = Path(__file__).parent / "data"
+DATA = Path(__file__).parents[1] / "data"
 
 
 @pytest.fixture(scope="module")

@@ -14,7 +14,7 @@ from stressmap.io.indicators import indicators_geojson
 from service_support import store_ready_model
 
 API = "/api/v1"
-DATA = Path(__file__).parent / "data"
+DATA = Path(__file__).parents[1] / "data"
 SMALL_CSV = (DATA / "indicators_small.csv").read_text()
 BROKEN_CSV = (DATA / "indicators_broken.csv").read_text()
 

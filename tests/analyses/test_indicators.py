@@ -13,7 +13,7 @@ from numpy.testing import assert_allclose
 from stressmap.analyses import indicators
 from stressmap.errors import IndicatorFileError, InputError
 
-DATA = Path(__file__).parent / "data"
+DATA = Path(__file__).parents[1] / "data"
 
 
 @pytest.fixture(scope="module")

@@ -32,7 +32,7 @@ import pytest
 from stressmap.errors import InputError
 from service_support import store_ready_model
 
-CORPUS = Path(__file__).resolve().parent / "hostile"
+CORPUS = Path(__file__).resolve().parents[1] / "hostile"
 TIME_LIMIT_S = 5.0
 PROBLEM = "application/problem+json"
 LEAKS = re.compile(r"Traceback|site-packages|/work/|/tmp/|/root/|\.py\b|File \"")
