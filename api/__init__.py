@@ -41,6 +41,10 @@ DEFAULTS: dict = {
     "MAX_QUEUED_JOBS": 32,
     "MODEL_CACHE_SIZE": 8,  # loaded models kept in memory (LRU)
     "COMPUTE_THREADS": 4,  # threads answering predictions (bounded; see limits.py)
+    "COMPUTE_PROCESSES": 2,  # isolated processes for unbounded work (calibration), killed at the limit
+    "COMPUTE_MEMORY_MB": 4096,  # address-space cap of one isolated process
+    "ISOLATE_COMPUTE": True,  # false: run that work on the thread pool instead (small set-ups)
+    "ALLOWED_HOSTS": ["localhost", "127.0.0.1", "::1"],  # Host header names served (any port)
     "API_TOKEN": "",  # empty: no token needed; set via STRESSMAP_API_TOKEN, never in the repo
     "READS_NEED_TOKEN": False,
     "CORS_ORIGINS": [],

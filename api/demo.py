@@ -11,7 +11,7 @@ import logging
 from importlib import resources
 
 import numpy as np
-from stressmap_api.builds import build_and_store
+from stressmap_api.tasks import build_and_store
 from stressmap_api.store import Store, document_digest
 
 from stressmap.model import locate

@@ -1,9 +1,16 @@
-"""Serialising prediction Datasets into HTTP responses (GeoJSON, CSV, netCDF, PNG).
+"""The one renderer of the service: every successful body leaves through :func:`respond`.
+
+:func:`respond` takes what a view computed (a JSON-able document, CSV text, netCDF or PNG bytes)
+and its format, and sets the media type, ``Content-Disposition`` and the caution header of
+pictures. :func:`render` turns a prediction Dataset into one of those payloads first, through the
+serialisers of :mod:`stressmap.formats` (one GeoJSON writer for the CLI, the Python API and the
+service) and :func:`stressmap.plot.maps.shmax_map`.
 
 Every spatial response carries the caution, the model id and its build time: GeoJSON as
 top-level members, CSV as leading ``# key: value`` lines, netCDF as global attributes, PNG in the
-caption. The serialisers themselves are :mod:`stressmap.formats.export` (one GeoJSON writer for the CLI,
-the Python API and the service) and :func:`stressmap.plot.maps.shmax_map`.
+caption (and the ``X-Stressmap-Caution`` header). Text drawn into pictures goes through
+:func:`picture_text` (plain text, bounded length), so a model name can neither trigger mathtext
+nor make a picture arbitrarily large.
 """
 
 from __future__ import annotations
@@ -18,15 +25,35 @@ from stressmap.formats import export
 from stressmap.model import plate_outline
 from stressmap.plot.maps import shmax_map
 
-__all__ = ["output_meta", "render", "MIMETYPES"]
+__all__ = ["output_meta", "render", "respond", "picture_text", "MIMETYPES", "MAX_PICTURE_TEXT"]
 
 MIMETYPES = {
+    "json": "application/json",
     "geojson": "application/geo+json",
     "csv": "text/csv; charset=utf-8",
     "netcdf": "application/x-netcdf",
     "png": "image/png",
 }
-_SUFFIX = {"geojson": "geojson", "csv": "csv", "netcdf": "nc", "png": "png"}
+_SUFFIX = {"json": "json", "geojson": "geojson", "csv": "csv", "netcdf": "nc", "png": "png"}
+#: Characters of one caption or title drawn into a picture.
+MAX_PICTURE_TEXT = 160
+
+
+def picture_text(text, limit: int = MAX_PICTURE_TEXT) -> str:
+    """``text`` as plain text for a picture: ``$`` escaped (matplotlib reads ``$...$`` as math),
+    control characters dropped, at most ``limit`` characters (an ellipsis marks a cut).
+
+    Examples
+    --------
+    >>> picture_text("$\\\\frac{$ plate")
+    '\\\\$\\\\frac{\\\\$ plate'
+    >>> len(picture_text("x" * 1000))
+    160
+    """
+    text = "".join(ch for ch in str(text) if ch.isprintable())
+    if len(text) > limit:
+        text = text[: limit - 1] + "\u2026"
+    return text.replace("$", r"\$")
 
 
 def output_meta(meta: dict, weights: dict | None = None) -> dict:
@@ -58,37 +85,55 @@ def _flatten(ds):
     return lon2.ravel(), lat2.ravel(), az, ri
 
 
+def _png(ds, meta: dict, grid: bool, model) -> bytes:
+    lon, lat, az, ri = _flatten(ds)
+    outline = plate_outline(model) if model is not None else None
+    caption = (f"Model {meta['model_id']} - {picture_text(meta.get('model_name'), 80)} - built "
+               f"{meta.get('build_time')}")
+    if meta.get("weights"):
+        caption += picture_text("; weights " + ", ".join(
+            f"{k} {v:g}" for k, v in meta["weights"].items()))
+    extent = None
+    if grid:  # the requested window (grid nodes span it)
+        extent = (float(np.min(lon)), float(np.min(lat)), float(np.max(lon)), float(np.max(lat)))
+    return shmax_map(lon, lat, az, ri, outline,
+                     title=f"SHmax and regime: {picture_text(meta.get('model_name'), 80)}",
+                     caption=caption, extent=extent)
+
+
 def render(ds, fmt: str, meta: dict, *, grid: bool, model=None, extra_properties=None,
-           stem: str = "stressmap") -> Response:
-    """One prediction Dataset as a response in ``fmt`` (geojson, csv, netcdf, png)."""
-
-    headers = {}
+           stem: str = "stressmap"):
+    """One prediction Dataset as the payload of ``fmt`` (geojson, csv, netcdf, png), ready for
+    :func:`respond` (a document for GeoJSON, text for CSV, bytes otherwise)."""
     if fmt == "geojson":
-        doc = (export.grid_geojson(ds, meta=meta) if grid
-               else export.points_geojson(ds, extra_properties=extra_properties, meta=meta))
-        body = current_app.json.dumps(doc)
-    elif fmt == "csv":
+        return (export.grid_geojson(ds, meta=meta) if grid
+                else export.points_geojson(ds, extra_properties=extra_properties, meta=meta))
+    if fmt == "csv":
         flat = _flat_meta(meta)
-        body = (export.grid_csv(ds, meta=flat) if grid
+        return (export.grid_csv(ds, meta=flat) if grid
                 else export.points_csv(ds, meta=flat, extra_properties=extra_properties))
-        headers["Content-Disposition"] = f'attachment; filename="{stem}.csv"'
-    elif fmt == "netcdf":
-        body = export.netcdf_bytes(ds, _flat_meta(meta))
-        headers["Content-Disposition"] = f'attachment; filename="{stem}.nc"'
-    elif fmt == "png":
+    if fmt == "netcdf":
+        return export.netcdf_bytes(ds, _flat_meta(meta))
+    if fmt == "png":
+        return _png(ds, meta, grid, model)
+    raise ValueError(fmt)  # pragma: no cover - requests.parse_format guards this
 
-        lon, lat, az, ri = _flatten(ds)
-        outline = plate_outline(model) if model is not None else None
-        caption = (f"Model {meta['model_id']} - {meta.get('model_name')} - built "
-                   f"{meta.get('build_time')}")
-        if meta.get("weights"):
-            caption += "; weights " + ", ".join(f"{k} {v:g}" for k, v in meta["weights"].items())
-        extent = None
-        if grid:  # the requested window (grid nodes span it)
-            extent = (float(np.min(lon)), float(np.min(lat)), float(np.max(lon)), float(np.max(lat)))
-        body = shmax_map(lon, lat, az, ri, outline, title=f"SHmax and regime: {meta.get('model_name')}",
-                         caption=caption, extent=extent)
-        headers["Content-Disposition"] = f'inline; filename="{stem}.png"'
-    else:  # pragma: no cover - parse_format guards this
-        raise ValueError(fmt)
-    return Response(body, status=200, mimetype=None, content_type=MIMETYPES[fmt], headers=headers)
+
+def respond(payload, fmt: str, *, stem: str | None = None, status: int = 200,
+            headers: dict | None = None) -> Response:
+    """The response for a computed ``payload`` in ``fmt`` (json, geojson, csv, netcdf, png).
+
+    JSON and GeoJSON documents are written by the app's JSON provider (numpy types, no NaN);
+    CSV, netCDF and PNG are named ``<stem>.<suffix>`` (attachment, or inline for pictures).
+    """
+    out = dict(headers or {})
+    if fmt in ("json", "geojson"):
+        body = payload if isinstance(payload, (str, bytes)) else current_app.json.dumps(payload)
+    else:
+        body = payload
+        if stem:
+            mode = "inline" if fmt == "png" else "attachment"
+            out.setdefault("Content-Disposition", f'{mode}; filename="{stem}.{_SUFFIX[fmt]}"')
+    if fmt == "png":
+        out.setdefault("X-Stressmap-Caution", json.dumps(CAUTION)[1:-1])
+    return Response(body, status=status, content_type=MIMETYPES[fmt], headers=out)

@@ -184,6 +184,7 @@ class Store:
         self._ready_meta: dict = {}  # index entries of the cached (ready) models
         self._cache_size = max(int(cache_size), 0)
         self._lock = threading.Lock()
+        self._epoch = 0  # bumped by every deletion or status change (see load)
         with self._connection() as con:
             con.executescript(_SCHEMA)
 
@@ -223,8 +224,16 @@ class Store:
         )
         return model_id
 
+    def forget_model(self, model_id: str) -> None:
+        """Remove the row of a model whose build was never queued (no job, no directory), so a
+        refused build leaves nothing behind."""
+        with self._lock:
+            self._epoch += 1
+        self._execute("DELETE FROM models WHERE id=? AND status='queued'", (check_id(model_id),))
+
     def set_model_status(self, model_id: str, status: str, error: str | None = None) -> None:
         with self._lock:
+            self._epoch += 1
             self._cache.pop(model_id, None)
             self._ready_meta.pop(model_id, None)
         self._execute("UPDATE models SET status=?, error=? WHERE id=?",
@@ -323,23 +332,35 @@ class Store:
             if model is not None:
                 self._cache.move_to_end(model_id)
                 return model
+            epoch = self._epoch
         meta = self.meta(model_id)
         if meta["status"] != "ready":
             raise ModelNotReady(model_id, meta["status"], meta.get("error"))
-
         try:
-            model = read_model(self.model_dir(model_id))
-        except FileNotFoundError as exc:
+            model = read_model(self.model_dir(model_id))  # netCDF read under the HDF5 lock
+        except (FileNotFoundError, NotFoundError) as exc:
+            self._recheck(model_id)  # deleted while we read: a 404, not a storage error
             raise StorageError(f"model {model_id} is indexed as ready but its files are missing") from exc
-        if self._cache_size:
-            with self._lock:
+        with self._lock:
+            # A deletion (or status change) that landed while the files were read must not
+            # leave the model in the cache; the index decides below.
+            stale = self._epoch != epoch
+            if self._cache_size and not stale:
                 self._cache[model_id] = model
                 self._ready_meta[model_id] = dict(meta)
                 self._cache.move_to_end(model_id)
                 while len(self._cache) > self._cache_size:
                     dropped, _ = self._cache.popitem(last=False)
                     self._ready_meta.pop(dropped, None)
+        if stale:
+            self._recheck(model_id)
         return model
+
+    def _recheck(self, model_id: str) -> None:
+        """Raise unless the index still lists ``model_id`` as ready (read from the index)."""
+        meta = self.meta(model_id, with_summary=True)  # never the cached entry
+        if meta["status"] != "ready":
+            raise ModelNotReady(model_id, meta["status"], meta.get("error"))
 
     def delete_model(self, model_id: str) -> None:
         """Remove a model: its index row first, then its directory (renamed away, then removed)."""
@@ -347,9 +368,22 @@ class Store:
         if meta["status"] in ("queued", "building"):
             raise ModelNotReady(model_id, meta["status"])
         with self._lock:
+            self._epoch += 1
             self._cache.pop(model_id, None)
             self._ready_meta.pop(model_id, None)
-        self._execute("DELETE FROM models WHERE id=?", (model_id,))
+        try:
+            self._execute("DELETE FROM models WHERE id=?", (model_id,))
+        except StorageError as exc:
+            if "full" not in str(exc):  # SQLITE_FULL: "database or disk is full"
+                raise
+            # A full disk can refuse even a deletion (the journal needs room): free the model's
+            # files first, then try the row again. A row left without files reads as missing
+            # files (503) and the next deletion or restart removes it.
+            self._remove_files(model_id)
+            self._execute("DELETE FROM models WHERE id=?", (model_id,))
+        self._remove_files(model_id)
+
+    def _remove_files(self, model_id: str) -> None:
         directory = self.models_dir / model_id
         if directory.exists():
             trash = self.models_dir / f".deleted-{model_id}-{uuid.uuid4().hex[:8]}"

@@ -12,107 +12,46 @@ request; ``DASK_SCHEDULER`` (an address) runs ensembles on a Dask cluster instea
 from __future__ import annotations
 
 import json
-import logging
 import math
-import os
 from pathlib import Path
 
 import numpy as np
-from flask import Blueprint, current_app, jsonify, request, url_for
-from stressmap_api import queries
+import xarray as xr
+from flask import Blueprint, current_app, request, url_for
+from stressmap_api import requests
 from stressmap_api.auth import require_token
 from stressmap_api.jobs import get_jobs
-from stressmap_api.limits import run_limited
+from stressmap_api.limits import run_isolated, run_limited
 from stressmap_api.problems import ApiProblem
-from stressmap_api.render import MIMETYPES, output_meta
-from stressmap_api.store import Store, check_id, get_store, new_id
+from stressmap_api.render import output_meta, picture_text, respond
+from stressmap_api.store import check_id, get_store, new_id
+from stressmap_api.tasks import ENSEMBLE_FILE, ensemble_links, run_ensemble_job
 
 from stressmap.analyses.calibrate import calibrate
 from stressmap.analyses.ensemble import (
     DEFAULT_PERCENTILES,
-    ensemble_grid,
     ensemble_png,
-    ensemble_points,
     flatten_percentiles,
     validate_distributions,
 )
-from stressmap.analyses.indicators import (
-    indicators_from_csv_text,
-    indicators_from_geojson,
-)
-from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
 from stressmap.formats import export
+from stressmap.formats.hdf5lock import NETCDF_LOCK
 from stressmap.model import plate_outline
 
-__all__ = ["bp", "run_calibration", "run_ensemble_job", "ENSEMBLE_FILE"]
-
-_log = logging.getLogger(__name__)
+__all__ = ["bp", "run_calibration", "ENSEMBLE_FILE"]
 
 bp = Blueprint("analysis", __name__)
 
-ENSEMBLE_FILE = "ensemble.nc"
 _PROPS_FILE = "properties.json"
 _CAL_KEYS = {"indicators", "indicators_csv", "bounds", "reference", "n_bootstrap", "n_random", "n_starts",
              "confidence", "seed", "skip_bad"}
 _ENS_KEYS = {"points", "region", "spacing_km", "members", "distributions", "seed", "percentiles"}
-_COUNT_LIMITS = {"n_bootstrap": (0, 2000), "n_random": (0, 2000), "n_starts": (1, 64),
-                 "members": (1, None), "seed": (0, 2**63 - 1)}
-
-
-def _object_body() -> dict:
-    body = queries.json_body(request)
-    if not isinstance(body, dict):
-        raise InputError("the request body must be a JSON object",
-                         [problem(f"expected an object, got {type(body).__name__}",
-                                  field="(body)")])
-    return body
-
-
-def _unknown(body: dict, allowed: set) -> None:
-    extra = sorted(set(body) - allowed)
-    if extra:
-        raise InputError("unknown members in the request",
-                         [problem(f"unknown member {k!r}; expected one of "
-                                  f"{', '.join(sorted(allowed))}", field=k) for k in extra])
-
-
-def _count(body: dict, key: str, default: int, upper: int | None = None) -> int:
-    value = body.get(key, default)
-    lo, hi = _COUNT_LIMITS[key]
-    hi = upper if upper is not None else hi
-    if isinstance(value, bool) or not isinstance(value, int) or value < lo or (
-            hi is not None and value > hi):
-        span = f"{lo} to {hi}" if hi is not None else f"at least {lo}"
-        raise InputError(f"{key} must be a whole number, {span}",
-                         [problem(f"got {value!r}", field=key)])
-    return int(value)
-
-
-def _indicators(body: dict, skip_bad: bool):
-    """The request's indicators: ``indicators`` (GeoJSON) or ``indicators_csv`` (CSV text), as
-    ``POST /models/{id}/compare`` takes them."""
-
-    if ("indicators" in body) == ("indicators_csv" in body):
-        raise InputError("give exactly one of indicators and indicators_csv",
-                         [problem("indicators (a GeoJSON FeatureCollection) or indicators_csv "
-                                  "(CSV text)", field="indicators")])
-    if "indicators_csv" in body:
-        text = body["indicators_csv"]
-        if not isinstance(text, str):
-            raise InputError("indicators_csv must be CSV text",
-                             [problem(f"got {type(text).__name__}", field="indicators_csv")])
-        return indicators_from_csv_text(text, skip_bad=skip_bad, name="indicators_csv")
-    value = body["indicators"]
-    if not isinstance(value, dict):
-        raise InputError("indicators must be a GeoJSON FeatureCollection",
-                         [problem(f"got {type(value).__name__}; CSV text goes in indicators_csv",
-                                  field="indicators")])
-    return indicators_from_geojson(value, skip_bad=skip_bad, field="indicators")
+_SEED_MAX = 2**63 - 1
 
 
 def run_calibration(model, indicators, options: dict) -> dict:
-    """Calibrate and serialise (runs on the compute pool)."""
+    """Calibrate and serialise (runs in a compute process that ends at the time limit)."""
 
     result = calibrate(model, indicators, **options)
     out = result.to_dict()
@@ -138,165 +77,77 @@ def _num(value):
 @bp.post("/models/<model_id>/calibrate")
 def calibrate_model(model_id: str):
     check_id(model_id)
-    body = _object_body()
-    _unknown(body, _CAL_KEYS)
-    skip_bad = body.get("skip_bad", False)
-    if not isinstance(skip_bad, bool):
-        raise InputError("skip_bad must be true or false", [problem(f"got {skip_bad!r}",
-                                                                    field="skip_bad")])
+    body = requests.object_body(request, _CAL_KEYS)
+    skip_bad = requests.flag(body.get("skip_bad"), "skip_bad")
     bounds = dict(current_app.config.get("CALIBRATION_BOUNDS") or {})
-    req_bounds = body.get("bounds") or {}
-    if not isinstance(req_bounds, dict):
-        raise InputError("bounds must be an object of group -> [low, high]",
-                         [problem(f"got {type(req_bounds).__name__}", field="bounds")])
-    bounds.update(req_bounds)
+    bounds.update(requests.parse_bounds(body.get("bounds")))
     reference = body.get("reference")
     if reference is not None and not isinstance(reference, str):
-        raise InputError("reference must be a load group name", [problem(f"got {reference!r}",
-                                                                         field="reference")])
+        raise InputError("reference must be a load group name",
+                         [problem(f"got {type(reference).__name__}", field="reference")])
     confidence = body.get("confidence", 0.95)
     if isinstance(confidence, bool) or not isinstance(confidence, (int, float)) \
             or not 0 < confidence < 1:
         raise InputError("confidence must be a number strictly between 0 and 1",
-                         [problem(f"got {confidence!r}", field="confidence")])
+                         [problem(f"got {confidence!r}"[:80], field="confidence")])
     options = {
         "bounds": bounds, "reference": reference, "confidence": float(confidence),
-        "n_bootstrap": _count(body, "n_bootstrap", 200),
-        "n_random": _count(body, "n_random", 100),
-        "n_starts": _count(body, "n_starts", 8),
-        "seed": _count(body, "seed", 0),
+        "n_bootstrap": requests.count(body.get("n_bootstrap"), "n_bootstrap", 200, 0, 2000),
+        "n_random": requests.count(body.get("n_random"), "n_random", 100, 0, 2000),
+        "n_starts": requests.count(body.get("n_starts"), "n_starts", 8, 1, 64),
+        "seed": requests.count(body.get("seed"), "seed", 0, 0, _SEED_MAX),
     }
-    indicators = _indicators(body, skip_bad)
-    max_points = int(current_app.config.get("MAX_POINTS") or 0)
-    if max_points and len(indicators) > max_points:
-        raise InputError(f"too many indicators: {len(indicators):,} (limit {max_points:,})",
-                         [problem("split the request", field="indicators")])
+    indicators = requests.parse_indicators(body, skip_bad,
+                                           int(current_app.config.get("MAX_POINTS") or 0))
     store = get_store()
     model = store.load(model_id)
     meta = store.meta(model_id)
-    out = run_limited(run_calibration, model, indicators, options)
+    out = run_isolated(run_calibration, model, indicators, options)
     out["skipped"] = indicators.attrs.get("skipped") or []
     out.update(output_meta(meta))
-    return jsonify(out)
+    return respond(out, "json")
 
 
 # ----------------------------------------------------------------------------- ensembles
-
-def _ensemble_links(model_id: str, ensemble_id: str, prefix: str) -> dict:
-    base = f"{prefix}/models/{model_id}/ensembles/{ensemble_id}"
-    return {"job": f"{prefix}/jobs/{ensemble_id}", "geojson": f"{base}?format=geojson",
-            "netcdf": f"{base}?format=netcdf", "png": f"{base}?format=png"}
-
-
-def run_ensemble_job(data_dir: str, model_id: str, job_id: str, spec: dict, progress=None,
-                     scheduler: str | None = None, prefix: str = "/api/v1") -> dict:
-    """The ensemble job (module level, so a worker process can run it): compute, store, report.
-
-    Writes ``<data_dir>/jobs/<job_id>/ensemble.nc`` atomically (temporary file, fsync, rename)
-    and returns a JSON-able summary with the links of the result.
-    """
-
-    store = Store(data_dir, cache_size=0)
-    model = store.load(model_id)
-    meta = store.meta(model_id)
-    kwargs = dict(members=spec["members"], distributions=spec["distributions"],
-                  seed=spec["seed"], percentiles=spec["percentiles"], progress=progress,
-                  scheduler=scheduler)
-    if "points" in spec:
-        ds = ensemble_points(model, np.asarray(spec["points"][0]), np.asarray(spec["points"][1]),
-                             **kwargs)
-    else:
-        ds = ensemble_grid(model, spec["bbox"], spec["spacing_km"], **kwargs)
-        if spec.get("polygon_wkt"):
-            ds = _mask_outside(ds, spec["polygon_wkt"])
-    out_dir = store.job_dir(job_id)
-    attrs = {"caution": CAUTION, "model_id": model_id, "model_name": meta.get("name") or "",
-             "build_time": meta.get("build_time") or ""}
-    data = export.netcdf_bytes(ds, attrs)
-    tmp = out_dir / (ENSEMBLE_FILE + ".tmp")
-    with open(tmp, "wb") as fh:
-        fh.write(data)
-        fh.flush()
-        os.fsync(fh.fileno())
-    os.replace(tmp, out_dir / ENSEMBLE_FILE)
-    inside = np.asarray(ds["inside"].values).astype(bool)
-    return {
-        "model_id": model_id,
-        "ensemble_id": job_id,
-        "members": int(spec["members"]),
-        "seed": int(spec["seed"]),
-        "points": int(inside.size),
-        "points_inside": int(inside.sum()),
-        "mean_shmax_std_deg": _num(np.nanmean(np.where(inside, ds["shmax_std_deg"].values, np.nan))
-                                   if inside.any() else float("nan")),
-        "links": _ensemble_links(model_id, job_id, prefix),
-        "caution": CAUTION,
-    }
-
-
-def _mask_outside(ds, polygon_wkt: str):
-    """Grid nodes outside the request polygon: inside = 0 and NaN / "" statistics."""
-    import shapely
-
-    poly = shapely.from_wkt(polygon_wkt)
-    lon2, lat2 = np.meshgrid(ds["lon"].values, ds["lat"].values)
-    keep = shapely.contains_xy(poly, np.mod(lon2 + 180.0, 360.0) - 180.0, lat2) | \
-        shapely.contains_xy(poly, lon2, lat2)
-    out = ds.copy()
-    for name, var in ds.data_vars.items():
-        if var.dims[:2] != ("lat", "lon"):
-            continue
-        mask = keep.reshape(keep.shape + (1,) * (var.ndim - 2))
-        if name == "inside":
-            out[name] = (var.dims, np.where(mask, var.values, 0).astype(var.dtype), var.attrs)
-        elif var.dtype.kind in "USO":
-            out[name] = (var.dims, np.where(mask, var.values, ""), var.attrs)
-        else:
-            out[name] = (var.dims, np.where(mask, var.values, np.nan), var.attrs)
-    return out
-
 
 @bp.post("/models/<model_id>/ensembles")
 @require_token
 def create_ensemble(model_id: str):
 
     check_id(model_id)
-    body = _object_body()
-    _unknown(body, _ENS_KEYS)
+    body = requests.object_body(request, _ENS_KEYS)
     cfg = current_app.config
     if "members" not in body:
         raise InputError("members is required", [problem("number of ensemble members",
                                                          field="members")])
-    members = _count(body, "members", 1000, int(cfg.get("MAX_ENSEMBLE_MEMBERS") or 10_000))
+    members = requests.count(body.get("members"), "members", 1000, 1,
+                             int(cfg.get("MAX_ENSEMBLE_MEMBERS") or 10_000))
     if ("points" in body) == ("region" in body):
         raise InputError("give exactly one of points and region",
                          [problem("an ensemble needs either points or region", field="points")])
-    spec: dict = {"members": members, "seed": _count(body, "seed", 0)}
+    spec: dict = {"members": members,
+                  "seed": requests.count(body.get("seed"), "seed", 0, 0, _SEED_MAX)}
     props = None
     if "points" in body:
         if body.get("spacing_km") is not None:
             raise InputError("spacing_km goes with region, not points",
                              [problem("remove spacing_km or use region", field="spacing_km")])
-        lon, lat, props = queries.parse_points(body["points"], int(cfg.get("MAX_POINTS") or 0))
+        lon, lat, props = requests.parse_points(body["points"], int(cfg.get("MAX_POINTS") or 0))
         spec["points"] = [lon.tolist(), lat.tolist()]
         n_points = lon.size
     else:
-        bbox, spacing, polygon = queries.parse_region(body["region"], body.get("spacing_km"),
-                                                      int(cfg.get("MAX_GRID_POINTS") or 0))
+        bbox, spacing, polygon = requests.parse_region(body["region"], body.get("spacing_km"),
+                                                       int(cfg.get("MAX_GRID_POINTS") or 0))
         spec.update(bbox=list(bbox), spacing_km=spacing,
                     polygon_wkt=polygon.wkt if polygon is not None else None)
-        n_points = queries.grid_size(bbox, spacing)
+        n_points = requests.grid_size(bbox, spacing)
     work_limit = int(cfg.get("MAX_ENSEMBLE_WORK") or 2_000_000_000)
     if members * n_points > work_limit:
         raise InputError(f"the ensemble is too large: {members:,} members x {n_points:,} points",
                          [problem(f"members x points must not exceed {work_limit:,}",
                                   field="members")])
-    percentiles = body.get("percentiles", list(DEFAULT_PERCENTILES))
-    if not (isinstance(percentiles, list) and 0 < len(percentiles) <= 20 and all(
-            queries._is_number(q) and 0 <= q <= 100 for q in percentiles)):
-        raise InputError("percentiles must be a list of 1 to 20 numbers between 0 and 100",
-                         [problem(f"got {percentiles!r}"[:80], field="percentiles")])
-    spec["percentiles"] = [float(q) for q in percentiles]
+    spec["percentiles"] = requests.parse_percentiles(body.get("percentiles"),
+                                                     DEFAULT_PERCENTILES)
     distributions = dict(cfg.get("ENSEMBLE_DISTRIBUTIONS") or {})
     req = body.get("distributions") or {}
     if not isinstance(req, dict):
@@ -316,17 +167,12 @@ def create_ensemble(model_id: str):
     job = store.job(job_id)
     job["model_id"] = model_id
     job["ensemble_id"] = job_id
-    job["links"] = _ensemble_links(model_id, job_id, prefix)
-    resp = jsonify(job)
-    resp.status_code = 202
-    resp.headers["Location"] = job["links"]["job"]
-    return resp
+    job["links"] = ensemble_links(model_id, job_id, prefix)
+    return respond(job, "json", status=202, headers={"Location": job["links"]["job"]})
 
 
 def _load_result(path: Path):
-    import xarray as xr
-
-    with xr.open_dataset(path) as ds:
+    with NETCDF_LOCK, xr.open_dataset(path) as ds:
         ds = ds.load()
     ds["inside"] = ds["inside"].astype(bool)
     if "regime" in ds:
@@ -334,37 +180,31 @@ def _load_result(path: Path):
     return ds
 
 
-def render_ensemble(path: Path, fmt: str, meta: dict, model, props) -> tuple[bytes, dict]:
-    """Body and headers of a stored ensemble in ``fmt`` (runs on the compute pool)."""
+def render_ensemble(path: Path, fmt: str, meta: dict, model, props):
+    """Payload of a stored ensemble in ``fmt`` (runs on the compute pool)."""
 
-    stem = f"stressmap-{meta['model_id'][:8]}-ensemble"
     if fmt == "netcdf":
-        return path.read_bytes(), {"Content-Disposition": f'attachment; filename="{stem}.nc"'}
+        return path.read_bytes()
     ds = _load_result(path)
     extra = {"members": int(ds.attrs.get("members", 0)), "seed": int(ds.attrs.get("seed", 0)),
              "distributions": json.loads(ds.attrs.get("distributions") or "{}")}
     if fmt == "png":
-        caption = (f"Model {meta['model_id']} - {meta.get('model_name')} - built "
-                   f"{meta.get('build_time')}; {extra['members']} members, seed {extra['seed']}")
-        png = ensemble_png(ds, plate_outline(model), caption=caption)
-        return png, {"Content-Disposition": f'inline; filename="{stem}.png"'}
+        caption = (f"Model {meta['model_id']} - {picture_text(meta.get('model_name'), 80)} - "
+                   f"built {meta.get('build_time')}; {extra['members']} members, "
+                   f"seed {extra['seed']}")
+        return ensemble_png(ds, plate_outline(model), caption=caption)
     flat = flatten_percentiles(ds)
     doc_meta = {**meta, **extra}
     if "point" in flat.dims:
-        doc = export.points_geojson(flat, extra_properties=props, meta=doc_meta)
-    else:
-        doc = export.grid_geojson(flat, meta=doc_meta)
-    return current_app.json.dumps(doc).encode("utf-8"), {}
+        return export.points_geojson(flat, extra_properties=props, meta=doc_meta)
+    return export.grid_geojson(flat, meta=doc_meta)
 
 
 @bp.get("/models/<model_id>/ensembles/<ensemble_id>")
 def get_ensemble(model_id: str, ensemble_id: str):
     check_id(model_id)
     check_id(ensemble_id, "ensemble")
-    fmt = request.args.get("format", "geojson").lower()
-    if fmt not in ("geojson", "netcdf", "png"):
-        raise InputError("format must be one of geojson, netcdf, png",
-                         [problem(f"unknown format {fmt[:20]!r}", field="format")])
+    fmt = requests.choice(request.args.get("format"), ("geojson", "netcdf", "png"), "format")
     store = get_store()
     job = store.job(ensemble_id)
     result = job.get("result") or {}
@@ -387,6 +227,5 @@ def get_ensemble(model_id: str, ensemble_id: str):
     props = json.loads(props_path.read_text(encoding="utf-8")) if props_path.is_file() else None
     model = store.load(model_id) if fmt == "png" else None
     meta = output_meta(store.meta(model_id))
-    body, headers = run_limited(render_ensemble, path, fmt, meta, model, props)
-    return current_app.response_class(body, status=200, content_type=MIMETYPES[fmt],
-                                      headers=headers)
+    payload = run_limited(render_ensemble, path, fmt, meta, model, props)
+    return respond(payload, fmt, stem=f"stressmap-{model_id[:8]}-ensemble")

@@ -16,21 +16,15 @@ caution; rows skipped with ``skip_bad`` are listed in ``skipped``.
 
 from __future__ import annotations
 
-import json
-
-import numpy as np
-from flask import Blueprint, Response, current_app, jsonify, request
-from stressmap_api import queries
+from flask import Blueprint, current_app, request
+from stressmap_api import requests
 from stressmap_api.jsonio import to_jsonable
 from stressmap_api.limits import run_limited
+from stressmap_api.render import respond
 from stressmap_api.store import check_id, get_store
 
 from stressmap.analyses.compare import COMPARISON_COLUMNS, compare
-from stressmap.analyses.indicators import (
-    CONVERT_COLUMNS,
-    indicators_from_csv_text,
-    indicators_from_geojson,
-)
+from stressmap.analyses.indicators import CONVERT_COLUMNS
 from stressmap.analyses.observed import (
     observed_geojson,
     observed_grid,
@@ -53,68 +47,10 @@ _SMOOTH_MEMBERS = {"indicators", "indicators_csv", "skip_bad", "bbox", "radius_k
                    "min_count", "max_dispersion_deg", "format"}
 
 
-def _object_body(allowed: set) -> dict:
-    body = queries.json_body(request)
-    if not isinstance(body, dict):
-        raise InputError("the request body must be a JSON object",
-                         [problem(f"expected an object, got {type(body).__name__}", field="(body)")])
-    unknown = sorted(set(body) - allowed)
-    if unknown:
-        raise InputError("unknown members in the request",
-                         [problem(f"unknown member {k!r}; allowed: {', '.join(sorted(allowed))}",
-                                  field=k) for k in unknown])
-    return body
-
-
-def _choice(value, options, field):
-    if value is None:
-        return options[0]
-    if not isinstance(value, str) or value.lower() not in options:
-        raise InputError(f"{field} must be one of {', '.join(options)}",
-                         [problem(f"unknown {field} {value!r}; use {', '.join(options)}", field=field)])
-    return value.lower()
-
-
-def _flag(value, field):
-    if value is None:
-        return False
-    if not isinstance(value, bool):
-        raise InputError(f"{field} must be true or false",
-                         [problem(f"expected a boolean, got {value!r}", field=field)])
-    return value
-
-
-def _number(value, field, default=None, integer=False):
-    if value is None and default is not None:
-        return default
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not np.isfinite(float(value)) \
-            or (integer and float(value) != int(value)):
-        kind = "a whole number" if integer else "a finite number"
-        raise InputError(f"{field} must be {kind}", [problem(f"expected {kind}, got {value!r}", field=field)])
-    return int(value) if integer else float(value)
-
-
 def _indicators(body):
-    """Parse the indicators of a request (exactly one of ``indicators`` and ``indicators_csv``)."""
-
-    skip_bad = _flag(body.get("skip_bad"), "skip_bad")
-    has_fc, has_csv = "indicators" in body, "indicators_csv" in body
-    if has_fc == has_csv:
-        raise InputError("give exactly one of indicators (GeoJSON) and indicators_csv (CSV text)",
-                         [problem("exactly one of indicators and indicators_csv is needed",
-                                  field="indicators")])
-    if has_csv:
-        if not isinstance(body["indicators_csv"], str):
-            raise InputError("indicators_csv must be CSV text",
-                             [problem("expected a string", field="indicators_csv")])
-        gdf = indicators_from_csv_text(body["indicators_csv"], skip_bad=skip_bad, name="indicators_csv")
-    else:
-        gdf = indicators_from_geojson(body["indicators"], skip_bad=skip_bad, field="indicators")
-    limit = int(current_app.config.get("MAX_POINTS") or 0)
-    if limit and len(gdf) > limit:
-        raise InputError(f"too many indicators ({len(gdf)}); the limit is {limit}",
-                         [problem("split the request", field="indicators")])
-    return gdf
+    """The indicators of a request (exactly one of ``indicators`` and ``indicators_csv``)."""
+    return requests.parse_indicators(body, requests.flag(body.get("skip_bad"), "skip_bad"),
+                                     int(current_app.config.get("MAX_POINTS") or 0))
 
 
 def _compare_columns(table):
@@ -149,10 +85,12 @@ def _run_compare(model, gdf, weights, fmt, picture, meta):
 @bp.post("/models/<model_id>/compare")
 def compare_model(model_id: str):
     check_id(model_id)
-    body = _object_body(_COMPARE_MEMBERS)
-    fmt = _choice(body.get("format", request.args.get("format")), COMPARE_FORMATS, "format")
-    picture = _choice(body.get("picture", request.args.get("picture")), PICTURES, "picture")
-    weights = queries.parse_weights(body.get("weights"))
+    body = requests.object_body(request, _COMPARE_MEMBERS)
+    fmt = requests.choice(body.get("format", request.args.get("format")), COMPARE_FORMATS,
+                          "format")
+    picture = requests.choice(body.get("picture", request.args.get("picture")), PICTURES,
+                              "picture")
+    weights = requests.parse_weights(body.get("weights"))
     store = get_store()
     model = store.load(model_id)
     info = store.meta(model_id)
@@ -160,17 +98,14 @@ def compare_model(model_id: str):
     skipped = gdf.attrs.get("skipped") or []
     meta = {"caution": CAUTION, "model_id": model_id, "build_time": info.get("build_time") or ""}
     result = run_limited(_run_compare, model, gdf, weights, fmt, picture, meta)
-    if fmt == "png":
-        return Response(result, mimetype="image/png")
+    stem = f"compare-{model_id[:8]}"
     if fmt == "csv":
         lines = "".join(f"# skipped: row {p.get('row')}, {p.get('field')}: {p['message']}\n"
                         for p in skipped)
-        return Response(lines + result, mimetype="text/csv",
-                        headers={"Content-Disposition": f'attachment; filename="compare-{model_id[:8]}.csv"'})
-    result["skipped"] = skipped
-    if fmt == "geojson":
-        return Response(json.dumps(to_jsonable(result), allow_nan=False), mimetype="application/geo+json")
-    return jsonify(result)
+        return respond(lines + result, fmt, stem=stem)
+    if fmt != "png":
+        result["skipped"] = skipped
+    return respond(result, fmt, stem=stem)
 
 
 def _run_smooth(gdf, bbox, radius_km, spacing_km, min_count, max_dispersion_deg, max_nodes, fmt):
@@ -182,24 +117,21 @@ def _run_smooth(gdf, bbox, radius_km, spacing_km, min_count, max_dispersion_deg,
 
 @bp.post("/indicators/smooth")
 def smooth():
-    body = _object_body(_SMOOTH_MEMBERS)
-    fmt = _choice(body.get("format", request.args.get("format")), SMOOTH_FORMATS, "format")
-    bbox = body.get("bbox")
-    if not (isinstance(bbox, list) and len(bbox) == 4
-            and all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in bbox)):
-        raise InputError("bbox must be [west, south, east, north] in degrees",
-                         [problem(f"expected four numbers, got {bbox!r}", field="bbox")])
+    body = requests.object_body(request, _SMOOTH_MEMBERS)
+    fmt = requests.choice(body.get("format", request.args.get("format")), SMOOTH_FORMATS,
+                          "format")
+    bbox = requests.parse_smooth_bbox(body.get("bbox"))
     if "radius_km" not in body:
         raise InputError("radius_km is required", [problem("missing", field="radius_km")])
-    radius = _number(body.get("radius_km"), "radius_km")
-    spacing = None if body.get("spacing_km") is None else _number(body["spacing_km"], "spacing_km")
-    min_count = _number(body.get("min_count"), "min_count", default=3, integer=True)
-    max_disp = _number(body.get("max_dispersion_deg"), "max_dispersion_deg", default=25.0)
+    radius = requests.number(body.get("radius_km"), "radius_km", positive=True)
+    spacing = (None if body.get("spacing_km") is None
+               else requests.parse_spacing(body["spacing_km"], "spacing_km"))
+    min_count = requests.count(body.get("min_count"), "min_count", 3, low=1)
+    max_disp = requests.number(body.get("max_dispersion_deg"), "max_dispersion_deg", 25.0,
+                               positive=True)
     gdf = _indicators(body)
     max_nodes = int(current_app.config.get("MAX_GRID_POINTS") or 0) or 1_000_000
     result = run_limited(_run_smooth, gdf, bbox, radius, spacing, min_count, max_disp, max_nodes, fmt)
-    if fmt == "netcdf":
-        return Response(result, mimetype="application/x-netcdf",
-                        headers={"Content-Disposition": 'attachment; filename="observed-shmax.nc"'})
-    result["skipped"] = gdf.attrs.get("skipped") or []
-    return Response(json.dumps(to_jsonable(result), allow_nan=False), mimetype="application/geo+json")
+    if fmt != "netcdf":
+        result["skipped"] = gdf.attrs.get("skipped") or []
+    return respond(result, fmt, stem="observed-shmax")

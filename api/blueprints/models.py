@@ -2,21 +2,22 @@
 
 from __future__ import annotations
 
-import numpy as np
 from flask import Blueprint, current_app, jsonify, request, url_for
-from stressmap_api import queries
+from stressmap_api import requests
 from stressmap_api.auth import require_token
-from stressmap_api.boundary import boundary_forces
-from stressmap_api.builds import build_and_store, check_document
 from stressmap_api.jobs import get_jobs
 from stressmap_api.limits import run_limited
-from stressmap_api.render import output_meta, render
+from stressmap_api.render import output_meta, render, respond
 from stressmap_api.store import get_store, new_id
+from stressmap_api.tasks import build_and_store
 
 from stressmap.errors import InputError, problem
+from stressmap.formats.boundary import boundary_geojson
+from stressmap.geo.gridmask import mask_dataset, polygon_keep
 from stressmap.model import predict_grid, predict_points
+from stressmap.model.boundary import segment_forces
 
-__all__ = ["bp", "predict_region", "segment_forces"]
+__all__ = ["bp", "predict_region"]
 
 bp = Blueprint("models", __name__)
 
@@ -33,16 +34,17 @@ def _model_links(model_id: str) -> dict:
 @bp.post("/models")
 @require_token
 def create_model():
-    document = queries.json_body(request)
-    checked = check_document(document, int(current_app.config.get("MAX_MESH_NODES") or 0))
+    document = requests.json_body(request)
+    checked = requests.parse_model_document(document,
+                                            int(current_app.config.get("MAX_MESH_NODES") or 0))
     store = get_store()
     job_id = new_id()
     model_id = store.add_model(checked["name"], job_id, checked["digest"])
     try:
         get_jobs().submit_as(job_id, "build", build_and_store, str(store.data_dir), model_id,
                              document, int(current_app.config.get("MAX_MESH_NODES") or 0))
-    except Exception:
-        store.set_model_status(model_id, "failed", "the build could not be queued")
+    except BaseException:
+        store.forget_model(model_id)  # a build never queued leaves no row behind
         raise
     job = store.job(job_id)
     job["model_id"] = model_id
@@ -73,24 +75,14 @@ def delete_model(model_id: str):
     return "", 204
 
 
-def segment_forces(model, weights=None) -> dict:
-    """Boundary segments with kinds and applied edge forces (see :mod:`stressmap_api.boundary`)."""
-
-    return boundary_forces(model, weights)
-
-
 @bp.get("/models/<model_id>/boundary")
 def get_boundary(model_id: str):
     store = get_store()
     model = store.load(model_id)
     meta = store.meta(model_id)
-    weights = queries.parse_weights_text(request.args.get("weights"))
-    fc = run_limited(segment_forces, model, weights)
-    out = {"type": "FeatureCollection", **output_meta(meta, weights)}
-    out.update({k: v for k, v in fc.items() if k not in ("type", "features")})
-    out["features"] = fc["features"]
-    return current_app.response_class(current_app.json.dumps(out), status=200,
-                                      content_type="application/geo+json")
+    weights = requests.parse_weights_text(request.args.get("weights"))
+    segments = run_limited(segment_forces, model, weights)
+    return respond(boundary_geojson(segments, output_meta(meta, weights)), "geojson")
 
 
 def predict_region(model, bbox, spacing_km, polygon=None, weights=None):
@@ -98,31 +90,8 @@ def predict_region(model, bbox, spacing_km, polygon=None, weights=None):
 
     ds = predict_grid(model, bbox=bbox, spacing_km=spacing_km, weights=weights)
     if polygon is not None:
-        import shapely
-
-        lon2, lat2 = np.meshgrid(ds["lon"].values, ds["lat"].values)
-        ds = _mask_grid(ds, shapely.contains_xy(polygon, lon2, lat2))
+        ds = mask_dataset(ds, polygon_keep(polygon, ds["lon"].values, ds["lat"].values))
     return ds
-
-
-def _mask_grid(ds, keep_lat_lon: np.ndarray):
-    """Set every variable on (lat, lon) outside ``keep`` to NaN ('' for text) and inside False."""
-    import xarray as xr
-
-    keep = xr.DataArray(keep_lat_lon, dims=("lat", "lon"),
-                        coords={"lat": ds["lat"], "lon": ds["lon"]})
-    out = ds.copy()
-    for name, var in ds.data_vars.items():
-        if not {"lat", "lon"} <= set(var.dims):
-            continue
-        if var.dtype == bool:
-            out[name] = var & keep
-        elif var.dtype.kind in ("U", "S", "O"):
-            out[name] = var.where(keep, "")
-        else:
-            out[name] = var.where(keep)
-        out[name].attrs = var.attrs
-    return out
 
 
 def _predict_points(model, lon, lat, weights):
@@ -134,30 +103,21 @@ def _predict_points(model, lon, lat, weights):
 def predict(model_id: str):
     store = get_store()
     meta = store.meta(model_id)  # 404 for an unknown or malformed id, before reading the body
-    body = queries.json_body(request)
-    if not isinstance(body, dict):
-        raise InputError("the request body must be a JSON object",
-                         [problem(f"expected an object with points or region, got "
-                                  f"{type(body).__name__}", field="(body)")])
-    unknown = sorted(set(body) - {"points", "region", "spacing_km", "weights", "format"})
-    if unknown:
-        raise InputError("unknown members in the request",
-                         [problem(f"unknown member {k!r} (use points or region, spacing_km, "
-                                  "weights, format)", field=k) for k in unknown])
+    body = requests.object_body(request, {"points", "region", "spacing_km", "weights", "format"})
     if ("points" in body) == ("region" in body):
         raise InputError("give exactly one of points and region",
                          [problem("a prediction needs either points or region", field="points")])
-    fmt = queries.parse_format(body.get("format"))
-    weights = queries.parse_weights(body.get("weights"))
+    fmt = requests.parse_format(body.get("format"))
+    weights = requests.parse_weights(body.get("weights"))
     cfg = current_app.config
     if "points" in body:
         if body.get("spacing_km") is not None:
             raise InputError("spacing_km goes with region, not points",
                              [problem("remove spacing_km or use region", field="spacing_km")])
-        lon, lat, props = queries.parse_points(body["points"], int(cfg.get("MAX_POINTS") or 0))
+        lon, lat, props = requests.parse_points(body["points"], int(cfg.get("MAX_POINTS") or 0))
         grid, args = False, (lon, lat)
     else:
-        bbox, spacing, polygon = queries.parse_region(body["region"], body.get("spacing_km"),
+        bbox, spacing, polygon = requests.parse_region(body["region"], body.get("spacing_km"),
                                                       int(cfg.get("MAX_GRID_POINTS") or 0))
         props, grid = None, True
     model = store.load(model_id)  # 409 unless ready
@@ -166,8 +126,9 @@ def predict(model_id: str):
     else:
         ds = run_limited(_predict_points, model, *args, weights)
     stem = f"stressmap-{model_id[:8]}-{'grid' if grid else 'points'}"
-    return run_limited(render, ds, fmt, output_meta(meta, weights), grid=grid, model=model,
-                       extra_properties=props, stem=stem)
+    payload = run_limited(render, ds, fmt, output_meta(meta, weights), grid=grid, model=model,
+                          extra_properties=props)
+    return respond(payload, fmt, stem=stem)
 
 
 @bp.get("/models/<model_id>/field")
@@ -175,12 +136,12 @@ def get_field(model_id: str):
     store = get_store()
     meta = store.meta(model_id)
     cfg = current_app.config
-    bbox = queries.parse_bbox_text(request.args.get("bbox"))
-    spacing = queries.parse_spacing_text(request.args.get("spacing_km"))
-    queries.check_grid(bbox, spacing, int(cfg.get("MAX_GRID_POINTS") or 0))
-    fmt = queries.parse_format(request.args.get("format"))
-    weights = queries.parse_weights_text(request.args.get("weights"))
+    bbox = requests.parse_bbox_text(request.args.get("bbox"))
+    spacing = requests.parse_spacing_text(request.args.get("spacing_km"))
+    requests.check_grid(bbox, spacing, int(cfg.get("MAX_GRID_POINTS") or 0))
+    fmt = requests.parse_format(request.args.get("format"))
+    weights = requests.parse_weights_text(request.args.get("weights"))
     model = store.load(model_id)
     ds = run_limited(predict_region, model, bbox, spacing, None, weights)
-    return run_limited(render, ds, fmt, output_meta(meta, weights), grid=True, model=model,
-                       stem=f"stressmap-{model_id[:8]}-field")
+    payload = run_limited(render, ds, fmt, output_meta(meta, weights), grid=True, model=model)
+    return respond(payload, fmt, stem=f"stressmap-{model_id[:8]}-field")

@@ -8,16 +8,14 @@ Every answer carries the caution.
 
 from __future__ import annotations
 
-import json
-
-from flask import Blueprint, Response, current_app, jsonify, request
-from stressmap_api import queries
+from flask import Blueprint, current_app, request
+from stressmap_api import requests
 from stressmap_api.limits import run_limited
+from stressmap_api.render import respond
 from stressmap_api.store import check_id, get_store
 
 from stressmap.analyses import sitescreen
 from stressmap.analyses.sitescreen import parse_request
-from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
 from stressmap.plot import screening as plot_screening
 
@@ -29,16 +27,6 @@ FORMATS = ("json", "geojson", "csv", "png")
 PICTURES = {"mohr": "mohr_png", "polygon": "polygon_png", "map": "fault_map_png"}
 #: Upper bound of planes x samples evaluated in one request (memory and time).
 MAX_PLANE_SAMPLES = 5_000_000
-
-
-def _choice(value, options, field):
-    if value is None:
-        return options[0]
-    if not isinstance(value, str) or value.lower() not in options:
-        raise InputError(f"{field} must be one of {', '.join(options)}",
-                         [problem(f"unknown {field} {value!r}; use {', '.join(options)}",
-                                  field=field)])
-    return value.lower()
 
 
 def _run(req, model, model_info, fmt, picture):
@@ -57,13 +45,9 @@ def _run(req, model, model_info, fmt, picture):
 @bp.post("/screen")
 def screen():
 
-    body = queries.json_body(request)
-    if not isinstance(body, dict):
-        raise InputError("the request body must be a JSON object",
-                         [problem(f"expected an object, got {type(body).__name__}",
-                                  field="(body)")])
-    fmt = _choice(body.get("format", request.args.get("format")), FORMATS, "format")
-    picture = _choice(body.get("picture", request.args.get("picture")), tuple(PICTURES),
+    body = requests.object_body(request)
+    fmt = requests.choice(body.get("format", request.args.get("format")), FORMATS, "format")
+    picture = requests.choice(body.get("picture", request.args.get("picture")), tuple(PICTURES),
                       "picture")
     req = parse_request(body)
     n_planes = req.plane_strike_deg.size + (
@@ -79,27 +63,12 @@ def screen():
                                   field="uncertainty.samples")])
     model = model_info = None
     if body.get("model_id") is not None:
-        model_id = body["model_id"]
-        if not isinstance(model_id, str):
-            raise InputError("model_id must be a string",
-                             [problem("expected a model id", field="model_id")])
-        check_id(model_id)
+        model_id = check_id(requests.parse_model_id(body["model_id"]))
         store = get_store()
         model = store.load(model_id)
         meta = store.meta(model_id)
         model_info = {"id": model_id, "name": meta.get("name"),
                       "build_time": meta.get("build_time")}
     kind, payload = run_limited(_run, req, model, model_info, fmt, picture)
-    if kind == "json":
-        return jsonify(payload)
-    if kind == "geojson":
-        return Response(current_app.json.dumps(payload), status=200,
-                        content_type="application/geo+json")
-    stem = "stressmap-screen"
-    if kind == "csv":
-        return Response(payload, status=200, content_type="text/csv; charset=utf-8",
-                        headers={"Content-Disposition": f'attachment; filename="{stem}.csv"'})
-
-    return Response(payload, status=200, content_type="image/png",
-                    headers={"Content-Disposition": f'inline; filename="{stem}-{picture}.png"',
-                             "X-Stressmap-Caution": json.dumps(CAUTION)[1:-1]})
+    stem = "stressmap-screen" + (f"-{picture}" if kind == "png" else "")
+    return respond(payload, kind, stem=stem)

@@ -15,6 +15,8 @@ import tempfile
 
 import numpy as np
 
+from stressmap.formats.hdf5lock import NETCDF_LOCK
+
 __all__ = [
     "points_geojson",
     "points_csv",
@@ -171,7 +173,8 @@ def netcdf_bytes(ds, meta: dict | None = None) -> bytes:
     fd, path = tempfile.mkstemp(suffix=".nc")
     os.close(fd)
     try:
-        out.to_netcdf(path, engine="netcdf4")
+        with NETCDF_LOCK:  # HDF5 is not thread-safe
+            out.to_netcdf(path, engine="netcdf4")
         with open(path, "rb") as fh:
             return fh.read()
     finally:

@@ -16,6 +16,7 @@ import uuid
 from pathlib import Path
 
 from stressmap.errors import NotFoundError, StorageError
+from stressmap.formats.hdf5lock import NETCDF_LOCK
 from stressmap.model import BuiltModel
 
 __all__ = ["write_model", "read_model", "MODEL_FILES", "fsync_dir"]
@@ -70,7 +71,8 @@ def write_model(model, directory) -> Path:
         _write_json(tmp / "definition.json", model.definition)
         _write_json(tmp / "summary.json", model.summary)
         nc_path = tmp / "fields.nc"
-        model.fields.to_netcdf(nc_path, engine="netcdf4")
+        with NETCDF_LOCK:  # HDF5 is not thread-safe
+            model.fields.to_netcdf(nc_path, engine="netcdf4")
         with nc_path.open("rb+") as fh:
             os.fsync(fh.fileno())
         fsync_dir(tmp)
@@ -103,7 +105,8 @@ def read_model(directory):
     try:
         definition = json.loads((path / "definition.json").read_text(encoding="utf-8"))
         summary = json.loads((path / "summary.json").read_text(encoding="utf-8"))
-        fields = xr.load_dataset(path / "fields.nc", engine="netcdf4")
+        with NETCDF_LOCK:  # HDF5 is not thread-safe; the whole file is loaded inside the lock
+            fields = xr.load_dataset(path / "fields.nc", engine="netcdf4")
     except (OSError, ValueError) as exc:
         raise StorageError(f"model directory {path.name} cannot be read: {exc}") from exc
     return BuiltModel(definition=definition, fields=fields, summary=summary)

@@ -17,7 +17,7 @@ TOKEN = "s3cret-test-token"
 
 @pytest.fixture(scope="module")
 def built(tmp_path_factory):
-    from stressmap_api.builds import build_and_store
+    from stressmap_api.tasks import build_and_store
     from stressmap_api.store import Store
 
     data = tmp_path_factory.mktemp("svc-errors") / "data"

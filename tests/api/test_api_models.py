@@ -24,7 +24,7 @@ API = "/api/v1"
 @pytest.fixture(scope="module")
 def built(tmp_path_factory):
     """A data directory holding one ready coarse demo model: (data_dir, model_id)."""
-    from stressmap_api.builds import build_and_store
+    from stressmap_api.tasks import build_and_store
     from stressmap_api.store import Store, document_digest
 
     data = tmp_path_factory.mktemp("svc") / "data"
