@@ -20,7 +20,7 @@ import tomllib
 from pathlib import Path
 
 from flask import Flask
-from stressmap_api import auth, blueprints, jobs, limits, store
+from stressmap_api import auth, blueprints, guards, jobs, limits, store
 from stressmap_api.jsonio import NumpyJSONProvider
 from stressmap_api.problems import register_error_handlers
 
@@ -89,6 +89,7 @@ def create_app(test_config: dict | None = None) -> Flask:
     register_error_handlers(app)
 
 
+    guards.init_app(app)  # Host header and JSON media type, before anything else
     store.init_app(app)  # data directory, SQLite index, restart recovery
     jobs.init_app(app)  # bounded background worker pool
     auth.init_app(app)  # bearer token for reads (if configured) and CORS allow-list

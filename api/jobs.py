@@ -38,7 +38,7 @@ from concurrent.futures.process import BrokenProcessPool
 from stressmap_api.errors import JobQueueFull
 from stressmap_api.store import Store, get_store, new_id, owner_token, register_owner
 
-from stressmap.errors import InputError, StressmapError
+from stressmap.errors import InputError, StorageError, StressmapError
 
 __all__ = ["JobRunner", "get_jobs", "init_app", "JobQueueFull"]
 
@@ -123,6 +123,9 @@ class JobRunner:
         self._pool = None
         self._lock = threading.Lock()
         self._pending: dict[str, Future] = {}
+        # Final states the index could not take (a full disk): reported from memory and written
+        # when the index takes writes again, so no job reads "running" forever.
+        self._unrecorded: dict[str, str] = {}
 
     def _executor(self):
         if self._pool is None:
@@ -180,10 +183,32 @@ class JobRunner:
             with self._lock:
                 if self._pool is not None and getattr(self._pool, "_broken", False):
                     self._pool = None  # a fresh pool for the next job
+        elif isinstance(exc, StorageError):
+            reason = f"the job's state or files could not be stored: {exc}"
         else:
             reason = f"the job could not be run: {type(exc).__name__}: {exc}"
         _log.error("job %s failed: %s", job_id, reason)
-        self.store.job_failed(job_id, reason)
+        self._record_failure(job_id, reason)
+
+    def _record_failure(self, job_id: str, reason: str) -> None:
+        try:
+            self.store.job_failed(job_id, reason)
+        except StorageError:
+            with self._lock:
+                self._unrecorded[job_id] = reason
+            return
+        with self._lock:
+            self._unrecorded.pop(job_id, None)
+
+    def overlay(self, job: dict) -> dict:
+        """``job`` (a :meth:`Store.job` view) with a final state the index could not take yet;
+        retries writing it."""
+        with self._lock:
+            reason = self._unrecorded.get(job.get("id"))
+        if reason is None or job.get("status") not in ("queued", "running"):
+            return job
+        self._record_failure(job["id"], reason)
+        return {**job, "status": "failed", "error": {"reason": reason}}
 
     def running(self) -> int:
         """Jobs of this runner that are queued or running."""

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import logging
+import traceback
 
 from flask import Flask, Response, json, request
 from stressmap_api.errors import JobQueueFull, ModelNotReady, scrub_paths
@@ -39,6 +40,21 @@ def problem_response(status: int, title: str, detail: str, errors: list[dict] | 
     for k, v in (headers or {}).items():
         resp.headers[k] = v
     return resp
+
+
+#: Characters of one logged traceback (the innermost frames are kept), so that no request can
+#: write more than this to the log (a deep recursion otherwise logs hundreds of KB).
+MAX_LOGGED_TRACEBACK = 8000
+
+
+def bounded_traceback(exc: BaseException, frames: int = 12) -> str:
+    """The innermost ``frames`` frames of ``exc``'s traceback, at most
+    :data:`MAX_LOGGED_TRACEBACK` characters (the message itself cut to 500)."""
+    head = f"{type(exc).__name__}: {str(exc)[:500]}"
+    body = "".join(traceback.format_tb(exc.__traceback__, limit=-frames))
+    if len(body) > MAX_LOGGED_TRACEBACK:
+        body = "...\n" + body[-MAX_LOGGED_TRACEBACK:]
+    return f"{head}\n{body}"
 
 
 def register_error_handlers(app: Flask) -> None:
@@ -78,6 +94,7 @@ def register_error_handlers(app: Flask) -> None:
 
     @app.errorhandler(Exception)
     def _unexpected(exc: Exception):
-        _log.exception("unhandled error")
+        _log.error("unhandled error on %s %s: %s", request.method, request.path[:200],
+                   bounded_traceback(exc))
         return problem_response(500, "Internal Server Error",
                                 "The server could not complete the request; the error was logged.")

@@ -366,7 +366,8 @@ def _polygon(value, field: str):
                                   field=field)])
     try:
         poly = shape(geom)
-    except (ValueError, TypeError, AttributeError, IndexError, shapely.errors.ShapelyError) as exc:
+    except (ValueError, TypeError, AttributeError, IndexError, KeyError,
+            shapely.errors.ShapelyError) as exc:
         raise InputError(f"{field} cannot be read as a polygon",
                          [problem(f"invalid coordinates: {exc}", field=f"{field}.coordinates")]
                          ) from None
@@ -407,6 +408,12 @@ def parse_region(value, top_spacing, max_grid_points: int):
     else:
         polygon = _polygon(value["polygon"], "region.polygon")
         bbox = tuple(float(v) for v in polygon.bounds)
+        w, s, e, n = bbox
+        if not (-360.0 <= w <= e <= 360.0 and -90.0 <= s <= n <= 90.0):
+            raise InputError("region.polygon lies outside the globe",
+                             [problem(f"its bounds {_short([w, s, e, n])} must lie within "
+                                      "longitude [-360, 360] and latitude [-90, 90]",
+                                      field="region.polygon.coordinates")])
     check_grid(bbox, spacing, max_grid_points, field)
     return bbox, spacing, polygon
 

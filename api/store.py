@@ -497,10 +497,13 @@ class Store:
         active = {r["id"] for r in self._execute(
             "SELECT m.id FROM models m JOIN jobs j ON j.id = m.job_id "
             "WHERE j.status IN ('queued','running')")}
+        ready = {r["id"] for r in self._execute("SELECT id FROM models WHERE status='ready'")}
         for entry in self.models_dir.iterdir():
             # Anything not named by an id is a temporary directory of an interrupted atomic write
             # or a renamed-away deletion; keep only those of builds still in progress elsewhere.
-            if ID_PATTERN.match(entry.name) or any(a in entry.name for a in active):
+            # A directory named by an id whose row is not ready (a worker killed between moving
+            # the model into place and marking it ready, or a row deleted) is removed too.
+            if entry.name in ready or any(a in entry.name for a in active):
                 continue
             if entry.is_dir():
                 shutil.rmtree(entry, ignore_errors=True)

@@ -288,12 +288,16 @@ def parse_request(doc: dict) -> ScreenRequest:
     lon = ((lon + 180.0) % 360.0) - 180.0 if math.isfinite(lon) else lon
 
     depth = _number(doc, "depth_km", problems, lo=0.0, lo_open=True, hi=40.0)
-    if "depth_km" not in doc:
+    if doc.get("depth_km") is None:  # missing or null
         problems.append(problem("required: depth below the surface in km", field="depth_km"))
     az = _number(doc, "shmax_azimuth_deg", problems)
     az = None if az is None else az % 180.0
     regime = doc.get("regime")
-    if regime is not None:
+    if regime is not None and not isinstance(regime, str):
+        problems.append(problem(f"must be one of {', '.join(sc.REGIMES)}, got a "
+                                f"{type(regime).__name__}", field="regime"))
+        regime = None
+    elif regime is not None:
         try:
             regime = sc.REGIMES[int(sc.regime_code_of(regime))]
         except InputError as exc:
@@ -1051,7 +1055,10 @@ def result_csv(result: ScreenResult) -> str:
     fields = [f for f in PLANE_FIELDS + _UNCERTAIN_FIELDS if f in result.planes]
     frame = pd.DataFrame(doc["planes"], columns=fields)
     if "name" in frame:  # keep spreadsheet programs from evaluating names as formulas
-        frame["name"] = [("'" + n) if isinstance(n, str) and n[:1] in "=+-@\t\r" else n
+        # (line breaks become spaces: a bare CR would start a new spreadsheet row unquoted)
+        frame["name"] = [n.replace("\r", " ").replace("\n", " ") if isinstance(n, str) else n
+                         for n in frame["name"]]
+        frame["name"] = [("'" + n) if isinstance(n, str) and n[:1] in "=+-@\t" else n
                          for n in frame["name"]]
     frame.to_csv(buf, index=False)
     return "\n".join(lines) + "\n" + buf.getvalue()

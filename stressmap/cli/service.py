@@ -12,9 +12,10 @@ import signal
 import tomllib
 from pathlib import Path
 
-from stressmap_api import create_app
+from stressmap_api import create_app, load_config
 from stressmap_api.demo import ensure_demo, example_points, example_requests
 from stressmap_api.jobs import get_jobs
+from stressmap_api.server import create_server
 from stressmap_api.store import get_store
 
 from stressmap import CAUTION
@@ -30,7 +31,8 @@ __all__ = ["register", "load_server_config", "SERVER_DEFAULTS"]
 _log = logging.getLogger(__name__)
 
 #: waitress settings used when config/server.toml is absent.
-SERVER_DEFAULTS = {"host": "127.0.0.1", "port": 8000, "threads": 8, "ident": "stressmap"}
+SERVER_DEFAULTS = {"host": "127.0.0.1", "port": 8000, "threads": 8, "ident": "stressmap",
+                   "channel_timeout": 20, "connection_limit": 500}
 
 _REPO_SERVER_CONFIG = Path(__file__).resolve().parents[2] / "config" / "server.toml"
 
@@ -54,8 +56,6 @@ def load_server_config(path: str | None = None) -> dict:
 
 
 def _cmd_serve(args) -> int:
-    from waitress import create_server
-
 
     server_cfg = load_server_config(args.server_config)
     if args.host:
@@ -71,6 +71,13 @@ def _cmd_serve(args) -> int:
         overrides["JOB_WORKERS"] = args.workers
     if args.demo:
         overrides["LOAD_DEMO"] = True
+    host = str(server_cfg.get("host") or "")
+    if host and host not in ("0.0.0.0", "::", ""):
+        # the address it listens on is a name clients may use in Host
+        allowed = load_config(overrides).get("ALLOWED_HOSTS") or []
+        allowed = [allowed] if isinstance(allowed, str) else list(allowed)
+        if "*" not in allowed and host.strip("[]").lower() not in allowed:
+            overrides["ALLOWED_HOSTS"] = [*allowed, host.strip("[]").lower()]
     app = create_app(overrides or None)
     with app.app_context():
         store = get_store()

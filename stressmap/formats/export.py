@@ -15,6 +15,7 @@ import tempfile
 
 import numpy as np
 
+from stressmap.formats.csvsafe import csv_cell
 from stressmap.formats.hdf5lock import NETCDF_LOCK
 
 __all__ = [
@@ -27,7 +28,6 @@ __all__ = [
     "records",
 ]
 
-_FORMULA_PREFIXES = ("=", "+", "-", "@", "\t", "\r")
 
 
 def _plain(value):
@@ -103,13 +103,7 @@ def grid_geojson(ds, meta: dict | None = None, inside_only: bool = True) -> dict
 
 def _csv_safe(value):
     """Neutralise spreadsheet formula injection in echoed text cells (OWASP CSV injection)."""
-    if isinstance(value, str) and value.startswith(_FORMULA_PREFIXES):
-        try:
-            float(value)
-            return value
-        except ValueError:
-            return "'" + value
-    return value
+    return csv_cell(value)
 
 
 def points_csv(ds, meta: dict | None = None, extra_properties: list[dict] | None = None) -> str:
@@ -134,12 +128,12 @@ def points_csv(ds, meta: dict | None = None, extra_properties: list[dict] | None
             keys.extend(k for k in (props or {}) if k not in keys)
         for key in keys:
             col = f"input_{key}" if key in names or key in ("lon", "lat") else key
-            table[col] = [_csv_safe((p or {}).get(key)) for p in extra_properties]
+            table[csv_cell(str(col))] = [_csv_safe((p or {}).get(key)) for p in extra_properties]
     for name, col in zip(names, cols):
         table[name] = col
     frame = pd.DataFrame(table)
     header = "".join(
-        f"# {k}: {str(v).replace(chr(10), ' ')}\n" for k, v in (meta or {}).items()
+        f"# {csv_cell(str(k))}: {csv_cell(str(v))}\n" for k, v in (meta or {}).items()
     )
     return header + frame.to_csv(index=False, lineterminator="\n", na_rep="")
 

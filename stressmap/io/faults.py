@@ -116,6 +116,10 @@ def faults_from_geojson(collection: dict, field: str = "faults") -> FaultInput:
             problems.append(problem("feature is not an object", field=field, row=i))
             continue
         props = feat.get("properties") or {}
+        if not isinstance(props, dict):
+            problems.append(problem(f"properties must be an object, got {type(props).__name__}",
+                                    field=f"{field}.features[{i - 1}].properties", row=i))
+            continue
         geom = feat.get("geometry") or {}
         gtype = geom.get("type") if isinstance(geom, dict) else None
         name = str(props.get("name", props.get("id", f"fault {i}")))

@@ -16,6 +16,7 @@ from pathlib import Path
 import numpy as np
 
 from stressmap.errors import IndicatorFileError, problem
+from stressmap.formats.csvsafe import csv_cell, csv_safe_frame
 
 __all__ = [
     "read_table",
@@ -199,28 +200,9 @@ def indicators_csv(frame, columns=None, meta: dict | None = None) -> str:
     quoted with a leading apostrophe, except numbers.
     """
     columns = list(columns or [c for c in frame.columns if c != "geometry"])
-    out = frame[columns].copy()
-    from pandas.api.types import is_string_dtype
-
-    for c in out.columns:
-        if out[c].dtype == object or is_string_dtype(out[c].dtype):  # pandas 3: str dtype
-            out[c] = out[c].map(_csv_cell)
-    head = "".join(f"# {k}: {v}\n" for k, v in (meta or {}).items())
+    out = csv_safe_frame(frame[columns])
+    head = "".join(f"# {csv_cell(str(k))}: {csv_cell(str(v))}\n" for k, v in (meta or {}).items())
     return head + out.to_csv(index=False, float_format="%.10g", lineterminator="\n")
-
-
-def _csv_cell(v):
-    if isinstance(v, str) and v[:1] in ("=", "+", "-", "@") and not _is_number(v):
-        return "'" + v
-    return v
-
-
-def _is_number(s: str) -> bool:
-    try:
-        float(s)
-    except ValueError:
-        return False
-    return True
 
 
 def write_indicators(frame, path, columns=None, meta: dict | None = None) -> Path:
