@@ -53,6 +53,9 @@ _MAX_ERRORS = 20  # problems listed per request (the count of the rest is given)
 #: Deepest nesting of arrays/objects read from a body (a GeoJSON MultiPolygon needs 4 inside its
 #: geometry; requests wrap it in at most a few more). Deeper bodies are refused before any use.
 MAX_JSON_DEPTH = 64
+#: Largest magnitude of a load-group weight or calibration bound (weights are dimensionless
+#: multipliers of the documented forces; far beyond this the stress arithmetic overflows).
+MAX_BOUND = 1e6
 #: Longest model name (characters); names appear in captions, file names and listings.
 MAX_NAME_CHARS = 200
 
@@ -371,6 +374,12 @@ def _polygon(value, field: str):
         raise InputError(f"{field} cannot be read as a polygon",
                          [problem(f"invalid coordinates: {exc}", field=f"{field}.coordinates")]
                          ) from None
+    w, s, e, n = (float(v) for v in poly.bounds) if not poly.is_empty else (0.0,) * 4
+    if not (-360.0 <= w <= e <= 360.0 and -90.0 <= s <= n <= 90.0):
+        raise InputError(f"{field} lies outside the globe",
+                         [problem(f"its bounds {_short([w, s, e, n])} must lie within "
+                                  "longitude [-360, 360] and latitude [-90, 90]",
+                                  field=f"{field}.coordinates")])
     if poly.is_empty or not poly.is_valid:
         reason = shapely.is_valid_reason(poly) if not poly.is_empty else "empty"
         raise InputError(f"{field} is not a valid polygon",
@@ -408,12 +417,6 @@ def parse_region(value, top_spacing, max_grid_points: int):
     else:
         polygon = _polygon(value["polygon"], "region.polygon")
         bbox = tuple(float(v) for v in polygon.bounds)
-        w, s, e, n = bbox
-        if not (-360.0 <= w <= e <= 360.0 and -90.0 <= s <= n <= 90.0):
-            raise InputError("region.polygon lies outside the globe",
-                             [problem(f"its bounds {_short([w, s, e, n])} must lie within "
-                                      "longitude [-360, 360] and latitude [-90, 90]",
-                                      field="region.polygon.coordinates")])
     check_grid(bbox, spacing, max_grid_points, field)
     return bbox, spacing, polygon
 
@@ -450,8 +453,9 @@ def parse_weights(value) -> dict | None:
         raise InputError("weights must be an object of load group -> number",
                          [problem(f"expected an object, got {type(value).__name__}",
                                   field="weights")])
-    probs = [problem(f"expected a finite number, got {_short(v)}", field=f"weights.{k}")
-             for k, v in value.items() if not _is_number(v)]
+    probs = [problem(f"expected a finite number within +-{MAX_BOUND:g}, got {_short(v)}",
+                     field=f"weights.{k}"[:120])
+             for k, v in value.items() if not (_is_number(v) and abs(v) <= MAX_BOUND)]
     if probs:
         raise InputError("weights must be finite numbers", probs)
     return {str(k): float(v) for k, v in value.items()}
@@ -474,7 +478,7 @@ def parse_weights_text(text: str | None) -> dict | None:
         name, sep, raw = item.replace("=", ":").partition(":")
         try:
             value = float(raw)
-            if not (sep and name.strip() and math.isfinite(value)):
+            if not (sep and name.strip() and math.isfinite(value) and abs(value) <= MAX_BOUND):
                 raise ValueError
         except ValueError:
             raise InputError("weights must read group:value,group:value",
@@ -674,10 +678,6 @@ def parse_smooth_bbox(value, field: str = "bbox") -> list[float]:
                                   field=field)])
     return [float(v) for v in value]
 
-
-#: Largest magnitude of a calibration bound (load-group weights are dimensionless multipliers of
-#: the documented forces; beyond this the optimiser's arithmetic overflows).
-MAX_BOUND = 1e6
 
 
 def parse_bounds(value, field: str = "bounds") -> dict:
