@@ -603,6 +603,10 @@ def init_app(app) -> Store:
     """Create the app's store (``app.extensions``), close connections on teardown, recover."""
     store = Store(app.config["DATA_DIR"], cache_size=int(app.config.get("MODEL_CACHE_SIZE", 8)),
                   connection_factory=_request_connection)
+    # One connection held for the app's lifetime: SQLite deletes the WAL and shared-memory files
+    # when the last connection closes and must create them again on the next open, which a full
+    # disk refuses; held open, they stay, so reads (and deletions) keep working on a full disk.
+    app.extensions[_EXTENSION + "_keeper"] = connect(store.db_path)
     app.extensions[_EXTENSION] = store
     app.teardown_appcontext(_close_connection)
     store.recover()
