@@ -301,14 +301,17 @@ def breakdown_pressure_mpa(stress_b, pp_mpa, strength: RockStrength, n_theta=THE
 
 
 def mud_window(stress_ned, pp_mpa, shmin_mpa, azimuth_deg, inclination_deg,
-               strength: RockStrength, max_breakout_width_deg=0.0):
+               strength: RockStrength, max_breakout_width_deg=0.0, upper_bound="least"):
     """Mud-pressure window (MPa) of wells of the given orientations (broadcast together).
 
     Returns
     -------
     dict of arrays, each shaped like the broadcast orientations:
         ``pore_pressure_mpa``, ``collapse_mpa``, ``breakdown_mpa``, ``shmin_mpa``,
-        ``lower_mpa`` = max(pore pressure, collapse), ``upper_mpa`` = min(breakdown, Shmin),
+        ``lower_mpa`` = max(pore pressure, collapse), ``upper_mpa`` = min(breakdown, Shmin)
+        (``upper_bound="least"``, the default) or Shmin alone (``"shmin"``: tensile wall
+        fractures are accepted while they cannot propagate, common practice where they form
+        even at balanced pressure),
         ``width_mpa`` = upper - lower (negative: no safe mud weight),
         ``breakout_deg``/``tensile_deg``: where breakouts and tensile fractures centre at the
         lower bound (degrees around the hole from the high side, [0, 180)).
@@ -329,7 +332,10 @@ def mud_window(stress_ned, pp_mpa, shmin_mpa, azimuth_deg, inclination_deg,
     breakdown = breakdown_pressure_mpa(s_b, pp, strength)
     shmin = np.broadcast_to(np.asarray(shmin_mpa, dtype=float), collapse.shape)
     lower = np.maximum(pp, collapse)
-    upper = np.minimum(breakdown, shmin)
+    if upper_bound not in ("least", "shmin"):
+        raise InputError("upper_bound must be least or shmin",
+                         [problem(f"got {upper_bound!r}", field="window.upper_bound")])
+    upper = np.minimum(breakdown, shmin) if upper_bound == "least" else shmin
     bo, tf = failure_azimuths_deg(s_b, pp, strength)
     return {"pore_pressure_mpa": np.asarray(pp, dtype=float), "collapse_mpa": collapse,
             "breakdown_mpa": breakdown, "shmin_mpa": np.asarray(shmin, dtype=float),

@@ -67,7 +67,7 @@ _OWN_KEYS = {"units", "rock", "well", "window", "breakout", "profile", "stress_p
 _SUB_KEYS = {
     "rock": {"ucs_mpa", "internal_friction", "tensile_mpa", "poisson"},
     "well": {"azimuth_deg", "inclination_deg", "mud_pressure_mpa"},
-    "window": {"step_deg", "max_breakout_width_deg"},
+    "window": {"step_deg", "max_breakout_width_deg", "upper_bound"},
     "breakout": {"width_deg", "mud_pressure_mpa"},
     "profile": {"max_depth_km", "step_km", "count"},
     "stress_path": {"biot", "poisson"},
@@ -126,7 +126,8 @@ def parse_well_request(doc: dict) -> WellRequest:
     >>> parse_well_request({"site": [5, 50], "depth_km": 3, "well": {"inclination_deg": 95}})
     Traceback (most recent call last):
     ...
-    stressmap.errors.InputError: must be >= 0 and <= 90, got 95
+    stressmap.errors.InputError: well.inclination_deg: must be >= 0 and <= 90, got 95
+      - field well.inclination_deg: must be >= 0 and <= 90, got 95
     """
     if not isinstance(doc, dict):
         raise InputError("the request must be a JSON object",
@@ -164,7 +165,11 @@ def parse_well_request(doc: dict) -> WellRequest:
     out["window"] = {"step_deg": _number(win, "step_deg", "window", problems, lo=1.0, hi=45.0,
                                          default=5.0),
                      "max_breakout_width_deg": _number(win, "max_breakout_width_deg", "window",
-                                                       problems, lo=0.0, hi=179.0, default=0.0)}
+                                                       problems, lo=0.0, hi=179.0, default=0.0),
+                     "upper_bound": win.get("upper_bound", "least")}
+    if out["window"]["upper_bound"] not in ("least", "shmin"):
+        problems.append(problem("must be least (breakdown and Shmin) or shmin",
+                                field="window.upper_bound"))
     if parts["breakout"] is not None:
         b = parts["breakout"]
         out["breakout"] = {
@@ -188,8 +193,9 @@ def parse_well_request(doc: dict) -> WellRequest:
                           "poisson": _number(path, "poisson", "stress_path", problems, lo=0.0,
                                              hi=0.5, default=0.25)}
     if problems:
-        raise InputError(problems[0]["message"] if len(problems) == 1 else
-                         f"the well request has {len(problems)} problems", problems)
+        first = problems[0]
+        raise InputError(f"{first.get('field')}: {first['message']}" if len(problems) == 1
+                         else f"the well request has {len(problems)} problems", problems)
     return WellRequest(site, units, out)
 
 
@@ -361,13 +367,20 @@ def run_stability(req: WellRequest, model=None, model_info=None) -> dict:
     s = result.site
     w = req.parts["well"]
     window = mud_window(result.stress_ned, s["pp_mpa"], s["shmin_mpa"], w["azimuth_deg"],
-                        w["inclination_deg"], rock, req.parts["window"]["max_breakout_width_deg"])
+                        w["inclination_deg"], rock, req.parts["window"]["max_breakout_width_deg"],
+                        req.parts["window"]["upper_bound"])
     out = _header(req, result)
     out["well"] = dict(w)
     out["rock"] = {"ucs_mpa": rock.ucs_mpa, "internal_friction": rock.internal_friction,
                    "tensile_mpa": rock.tensile_mpa, "poisson": rock.poisson}
     out["window"] = {k: float(v) for k, v in window.items()}
     out["window"]["max_breakout_width_deg"] = req.parts["window"]["max_breakout_width_deg"]
+    out["window"]["upper_bound"] = req.parts["window"]["upper_bound"]
+    if window["breakdown_mpa"] <= s["pp_mpa"]:
+        out["notes"].append("tensile wall fractures form even at balanced mud pressure (common "
+                            "where the crust is near its frictional limit); they cannot "
+                            "propagate while the mud pressure stays below Shmin (window."
+                            "upper_bound = shmin accepts them)")
     pw = w["mud_pressure_mpa"]
     if pw is not None:
         s_b = borehole_stress(result.stress_ned, w["azimuth_deg"], w["inclination_deg"])
@@ -397,11 +410,13 @@ def run_window(req: WellRequest, model=None, model_info=None) -> dict:
         inc = np.append(inc, 90.0)
     aa, ii = np.meshgrid(az, inc)
     window = mud_window(result.stress_ned, s["pp_mpa"], s["shmin_mpa"], aa, ii, rock,
-                        req.parts["window"]["max_breakout_width_deg"])
+                        req.parts["window"]["max_breakout_width_deg"],
+                        req.parts["window"]["upper_bound"])
     out = _header(req, result)
     out["rock"] = {"ucs_mpa": rock.ucs_mpa, "internal_friction": rock.internal_friction,
                    "tensile_mpa": rock.tensile_mpa, "poisson": rock.poisson}
-    out["grid"] = {"azimuth_deg": az, "inclination_deg": inc}
+    out["grid"] = {"azimuth_deg": az, "inclination_deg": inc,
+                   "upper_bound": req.parts["window"]["upper_bound"]}
     out["window"] = window
     best = np.unravel_index(np.nanargmax(window["width_mpa"]), window["width_mpa"].shape)
     worst = np.unravel_index(np.nanargmin(window["width_mpa"]), window["width_mpa"].shape)
