@@ -315,6 +315,7 @@ def run_net(req: WellRequest, model=None, model_info=None, size: int = 181) -> d
     inside = np.isfinite(net["slip_tendency"])
     out["fraction_at_or_past_friction"] = float(
         (net["slip_tendency"][inside] >= s["friction"]).mean())
+    out["greatest_slip_tendency"] = float(net["slip_tendency"][inside].max())
     planes = _planes(req, out["notes"])
     if planes["strike_deg"].size:
         tend = fault_tendencies(result.stress_ned, s["pp_mpa"], planes["strike_deg"],
@@ -389,6 +390,7 @@ def run_stability(req: WellRequest, model=None, model_info=None) -> dict:
             "mud_pressure_mpa": pw,
             "breakout_width_deg": float(breakout_width_deg(s_b, pw, s["pp_mpa"], rock)),
             "breakout_deg": float(bo), "tensile_deg": float(tf),
+            "tensile_fractures": bool(pw >= window["breakdown_mpa"]),
             "inside_window": bool(window["lower_mpa"] <= pw <= window["upper_mpa"])}
     if w["inclination_deg"] == 0.0:
         out["window"]["breakout_azimuth_deg"] = float(

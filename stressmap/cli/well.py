@@ -134,7 +134,8 @@ def _report(kind: str, doc: dict) -> str:
         if "at_mud_pressure" in doc:
             a = doc["at_mud_pressure"]
             lines.append(f"  at the given mud pressure: breakout width "
-                         f"{a['breakout_width_deg']:.0f} deg, inside the window: "
+                         f"{a['breakout_width_deg']:.0f} deg, tensile wall fractures: "
+                         f"{'yes' if a['tensile_fractures'] else 'no'}, inside the window: "
                          f"{'yes' if a['inside_window'] else 'no'}")
     elif kind == "window":
         lines.append(f"Widest window: azimuth {doc['widest']['azimuth_deg']:g}, inclination "
@@ -147,7 +148,11 @@ def _report(kind: str, doc: dict) -> str:
                      f"--shmax-mpa in other commands, or give --breakout-width-deg)")
     elif kind == "net":
         lines.append(f"{100 * doc['fraction_at_or_past_friction']:.1f} % of plane orientations "
-                     "reach the friction coefficient")
+                     f"reach the friction coefficient {s['friction']:g}; the greatest slip "
+                     f"tendency is {doc['greatest_slip_tendency']:.3f}"
+                     + (" (the crust at its frictional limit: only the optimally oriented "
+                        "planes reach it)" if doc["greatest_slip_tendency"] >= 0.98 *
+                        s["friction"] and doc["fraction_at_or_past_friction"] < 0.01 else ""))
     elif kind == "path":
         a = doc["stress_path"]["coefficient"]
         lines.append(f"Stress path coefficient A = {a:.3f}; change of pore pressure to failure "
