@@ -120,11 +120,13 @@ def render(ds, fmt: str, meta: dict, *, grid: bool, model=None, extra_properties
 
 
 def respond(payload, fmt: str, *, stem: str | None = None, status: int = 200,
-            headers: dict | None = None) -> Response:
+            headers: dict | None = None, caution_header: bool | None = None) -> Response:
     """The response for a computed ``payload`` in ``fmt`` (json, geojson, csv, netcdf, png).
 
     JSON and GeoJSON documents are written by the app's JSON provider (numpy types, no NaN);
     CSV, netCDF and PNG are named ``<stem>.<suffix>`` (attachment, or inline for pictures).
+    Pictures carry the caution in ``X-Stressmap-Caution``; ``caution_header`` adds or drops it
+    for any format.
     """
     out = dict(headers or {})
     if fmt in ("json", "geojson"):
@@ -134,6 +136,6 @@ def respond(payload, fmt: str, *, stem: str | None = None, status: int = 200,
         if stem:
             mode = "inline" if fmt == "png" else "attachment"
             out.setdefault("Content-Disposition", f'{mode}; filename="{stem}.{_SUFFIX[fmt]}"')
-    if fmt == "png":
+    if caution_header if caution_header is not None else fmt == "png":
         out.setdefault("X-Stressmap-Caution", json.dumps(CAUTION)[1:-1])
     return Response(body, status=status, content_type=MIMETYPES[fmt], headers=out)

@@ -8,15 +8,13 @@ the units asked for. Nothing is stored, so no token is needed. Every answer carr
 
 from __future__ import annotations
 
-import json
-
-from flask import Blueprint, Response, jsonify, request
-from stressmap_api import queries
+from flask import Blueprint, request
+from stressmap_api import requests
 from stressmap_api.limits import run_limited
+from stressmap_api.render import respond
 from stressmap_api.store import check_id, get_store
 
 from stressmap.analyses import wells
-from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
 from stressmap.formats.wells import csv_table, json_document
 from stressmap.plot import wells as plot_wells
@@ -35,21 +33,14 @@ FORMATS = ("json", "csv", "png")
 
 def _format(body: dict, analysis: str) -> str:
     value = body.pop("format", None) or request.args.get("format") or "json"
-    allowed = FORMATS if analysis in PICTURES else FORMATS[:2]
-    if not isinstance(value, str) or value.lower() not in allowed:
-        raise InputError(f"format must be one of {', '.join(allowed)}",
-                         [problem(f"unknown format {value!r} for {analysis}", field="format")])
-    return value.lower()
+    return requests.choice(value, FORMATS if analysis in PICTURES else FORMATS[:2], "format")
 
 
 def _model(body: dict):
     model_id = body.pop("model_id", None)
     if model_id is None:
         return None, None
-    if not isinstance(model_id, str):
-        raise InputError("model_id must be a string",
-                         [problem("expected a model id", field="model_id")])
-    check_id(model_id)
+    check_id(requests.parse_model_id(model_id))
     store = get_store()
     model = store.load(model_id)
     meta = store.meta(model_id)
@@ -69,12 +60,7 @@ def run(analysis: str):
     if analysis not in ANALYSES:
         raise InputError(f"unknown well analysis {analysis!r}",
                          [problem(f"use one of {', '.join(ANALYSES)}", field="analysis")])
-    body = queries.json_body(request)
-    if not isinstance(body, dict):
-        raise InputError("the request body must be a JSON object",
-                         [problem(f"expected an object, got {type(body).__name__}",
-                                  field="(body)")])
-    body = dict(body)
+    body = dict(requests.object_body(request))
     fmt = _format(body, analysis)
     model, info = _model(body)
     req = wells.parse_well_request(body)
@@ -83,14 +69,4 @@ def run(analysis: str):
             raise InputError("too many samples for a profile (at most 20000)",
                              [problem("use fewer samples", field="uncertainty.samples")])
     payload = run_limited(_run, analysis, req, model, info, fmt)
-    caution = json.dumps(CAUTION)[1:-1]
-    if fmt == "json":
-        return jsonify(payload)
-    stem = f"stressmap-well-{analysis}"
-    if fmt == "csv":
-        return Response(payload, status=200, content_type="text/csv; charset=utf-8",
-                        headers={"Content-Disposition": f'attachment; filename="{stem}.csv"',
-                                 "X-Stressmap-Caution": caution})
-    return Response(payload, status=200, content_type="image/png",
-                    headers={"Content-Disposition": f'inline; filename="{stem}.png"',
-                             "X-Stressmap-Caution": caution})
+    return respond(payload, fmt, stem=f"stressmap-well-{analysis}", caution_header=fmt != "json")
