@@ -27,7 +27,7 @@ from __future__ import annotations
 import math
 import re
 import sys
-from typing import Callable, Iterable, Mapping, Sequence
+from collections.abc import Callable, Iterable, Mapping, Sequence
 
 import numpy as np
 

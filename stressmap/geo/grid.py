@@ -43,7 +43,7 @@ __all__ = [
 ]
 
 #: Length of one degree of arc on the sphere of radius EARTH_RADIUS_KM, km.
-KM_PER_DEG = math.radians(1.0) * EARTH_RADIUS_KM
+KM_PER_DEG = math.pi * EARTH_RADIUS_KM / 180.0
 #: Finest spacing any grid accepts, km (a metre; finer asks for more nodes than any limit).
 MIN_SPACING_KM = 0.001
 _EDGE_SLACK = 1e-9  # of a step: a node this close to E or N is on the edge
