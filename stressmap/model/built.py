@@ -5,8 +5,6 @@ from __future__ import annotations
 import logging
 from dataclasses import dataclass, field
 
-
-
 log = logging.getLogger(__name__)
 
 
