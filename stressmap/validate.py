@@ -37,6 +37,7 @@ __all__ = [
     "MISSING",
     "LON_RANGE",
     "WRAPPED_LON_RANGE",
+    "cell",
     "describe",
     "leaf",
     "number",
@@ -75,6 +76,22 @@ LON_RANGE = (-180.0, 180.0)
 WRAPPED_LON_RANGE = (-180.0, 360.0)
 #: Smallest positive normal float; anything nonzero below it is a subnormal (denormal) number.
 _TINY = sys.float_info.min
+
+
+def cell(value):
+    """A table cell or optional property: null, blank text and NaN (pandas' empty cell) become
+    :data:`MISSING`; anything else is returned unchanged.
+
+    Examples
+    --------
+    >>> cell(None), cell("  "), cell(float("nan")), cell(np.float64("nan")), cell("0"), cell(0.0)
+    (MISSING, MISSING, MISSING, MISSING, '0', 0.0)
+    """
+    if value is None or (isinstance(value, str) and not value.strip()):
+        return MISSING
+    if isinstance(value, (float, np.floating)) and math.isnan(value):
+        return MISSING
+    return value
 
 
 def describe(value) -> str:
