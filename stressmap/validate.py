@@ -259,8 +259,11 @@ def number(value, field: str | None, problems: list, *, name: str | None = None,
 
 def number_pair(value, field: str | None, problems: list, *, name: str | None = None,
                 row: int | None = None, low: float | None = None, high: float | None = None,
-                required: bool | str = False) -> tuple[float, float] | None:
+                required: bool | str = False, text: str | None = None
+                ) -> tuple[float, float] | None:
     """A ``[low, high]`` interval of finite numbers within ``[low, high]`` (inclusive).
+
+    ``text`` is a separator: with ``text=","`` the string ``"0.5,0.8"`` reads as a pair too.
 
     Examples
     --------
@@ -270,10 +273,14 @@ def number_pair(value, field: str | None, problems: list, *, name: str | None = 
     >>> number_pair([0.8, 0.4], "uncertainty.friction_range", p)
     >>> number_pair([0.1, 3], "uncertainty.friction_range", p, low=0, high=2)
     >>> number_pair("0.1,0.2", "uncertainty.friction_range", p)
+    >>> number_pair("0.1,x", "--friction-range", p, text=",")
     >>> for q in p: print(q["message"])
     friction_range low 0.8 exceeds high 0.4
     friction_range must lie within [0, 2], got [0.1, 3]
     friction_range must be a pair [low, high] of finite numbers, got the string '0.1,0.2'
+    --friction-range must be a pair LOW,HIGH of finite numbers, got the string '0.1,x'
+    >>> number_pair(" 1 , 2", "--friction-range", p, text=",")
+    (1.0, 2.0)
     """
     what = name or leaf(field)
     if value is MISSING or value is None:
@@ -281,13 +288,16 @@ def number_pair(value, field: str | None, problems: list, *, name: str | None = 
             _add(problems, f"{what} is required" + (f": {required}" if isinstance(required, str)
                                                     else ""), field, row)
         return None
+    given = value
+    if text and isinstance(value, str):
+        value = value.split(text)
     inner: list = []
     if isinstance(value, (list, tuple)) and len(value) == 2:
-        inner = [number(v, field, inner, name=what) for v in value]
+        inner = [number(v, field, inner, name=what, text=bool(text)) for v in value]
     if len(value if isinstance(value, (list, tuple)) else ()) != 2 or any(
             v is None for v in inner):
-        _add(problems, f"{what} must be a pair [low, high] of finite numbers, got "
-             f"{describe(value)}", field, row)
+        _add(problems, f"{what} must be a pair {'LOW' + text + 'HIGH' if text else '[low, high]'}"
+             f" of finite numbers, got {describe(given)}", field, row)
         return None
     a, b = inner
     if a > b:

@@ -11,6 +11,7 @@ import json
 import math
 from pathlib import Path
 
+from stressmap import validate
 from stressmap.analyses.indicators import read_indicators
 from stressmap.analyses.sitescreen import (
     parse_plane_text,
@@ -21,7 +22,6 @@ from stressmap.analyses.sitescreen import (
     result_json,
     screen,
 )
-from stressmap import validate
 from stressmap.cli.model import parse_weights
 from stressmap.errors import InputError, problem
 from stressmap.io.faults import read_fault_file
@@ -39,17 +39,17 @@ def parse_pair(text: str | None, option: str):
     --------
     >>> parse_pair("0.5,0.8", "--friction-range")
     [0.5, 0.8]
+    >>> parse_pair("0.8", "--friction-range")
+    Traceback (most recent call last):
+    ...
+    stressmap.errors.InputError: --friction-range must be a pair LOW,HIGH of finite numbers, got the string '0.8'
     """
     if text is None:
         return None
-    parts = text.split(",")
-    try:
-        if len(parts) != 2:
-            raise ValueError
-        return [float(parts[0]), float(parts[1])]
-    except ValueError:
-        raise InputError(f"cannot read {option} {text!r}: use LOW,HIGH",
-                         [problem("expected two numbers LOW,HIGH", field=option)]) from None
+    problems: list = []
+    pair = validate.number_pair(text, option, problems, text=",")
+    validate.raise_problems(problems)
+    return list(pair)
 
 
 def read_density_profile(path) -> dict:
