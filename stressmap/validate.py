@@ -145,6 +145,10 @@ def _fmt(v) -> str:
         return repr(v)
 
 
+def _missing(what: str, required) -> str:
+    return f"missing {what!r}" + (f" ({required})" if isinstance(required, str) else "")
+
+
 def _add(problems: list, message: str, field, row) -> None:
     problems.append(problem(message, field=field, row=row))
 
@@ -174,8 +178,9 @@ def number(value, field: str | None, problems: list, *, name: str | None = None,
     integer
         Require a whole number (3.0 is accepted and returned as 3).
     required
-        When the value is :data:`MISSING` (or empty text): record "NAME is required" (a string
-        is appended as the explanation, ``required="depth in km"``). When false, return None
+        When the value is :data:`MISSING` (or empty text): record "missing 'NAME'" (a string
+        is added as the explanation, ``required="depth in km"`` gives "missing 'NAME' (depth
+        in km)"). When false, return None
         silently.
     nullable
         Accept ``None`` (JSON null) as "not given" and return None silently; otherwise null is
@@ -204,57 +209,53 @@ def number(value, field: str | None, problems: list, *, name: str | None = None,
     >>> number(" 7.5 ", "dip_deg", p, text=True, row=3, high=90), number("", "dip_deg", p, text=True, required=True, row=4)
     (7.5, None)
     >>> p
-    [{'message': 'dip_deg is required', 'field': 'dip_deg', 'row': 4}]
+    [{'message': "missing 'dip_deg'", 'field': 'dip_deg', 'row': 4}]
     """
     what = name or leaf(field)
-    if value is MISSING or (text and isinstance(value, str) and not value.strip()):
-        if required:
-            _add(problems, f"{what} is required" + (f": {required}" if isinstance(required, str)
-                                                    else ""), field, row)
+    if value is MISSING or (text and isinstance(value, str) and not value.strip()) or (
+            value is None and (nullable or (required and text))):
+        if required and not (value is None and nullable):
+            _add(problems, _missing(what, required), field, row)
         return None
-    if value is None:
-        if nullable:
-            return None
-        if required and text:
-            _add(problems, f"{what} is required" + (f": {required}" if isinstance(required, str)
-                                                    else ""), field, row)
-            return None
+    v, why = _as_float(value, text)
+    if why is None and not subnormal and v != 0.0 and abs(v) < _TINY:
+        why = (f"{v:g} is a subnormal number, too small to compute with; give 0 or a magnitude "
+               f"of at least {_TINY:g}")
+    if why is None and integer and v != math.floor(v):
+        why = f"must be a whole number, got {v:g}"
+    if why is None:
+        why = _outside(v, low, high, low_inclusive, high_inclusive)
+    if why is not None:
+        _add(problems, f"{what} {why}", field, row)
+        return None
+    return int(v) if integer else v
+
+
+def _as_float(value, text: bool) -> tuple[float, str | None]:
+    """(value as a finite float, None) or (nan, why not) -- the message without the name."""
     if text and isinstance(value, str):
         try:
             v = float(value.strip())
         except ValueError:
-            _add(problems, f"{what} must be a number, got {describe(value)}", field, row)
-            return None
+            return math.nan, f"must be a number, got {describe(value)}"
     elif isinstance(value, (bool, np.bool_)) or not isinstance(
             value, (int, float, np.integer, np.floating)):
-        _add(problems, f"{what} must be a number, got {describe(value)}", field, row)
-        return None
+        return math.nan, f"must be a number, got {describe(value)}"
     else:
         try:
             v = float(value)
         except OverflowError:
-            _add(problems, f"{what} is too large: {_fmt(value)} does not fit a 64-bit float",
-                 field, row)
-            return None
-    if not math.isfinite(v):
-        _add(problems, f"{what} must be finite, got {v}", field, row)
-        return None
-    if not subnormal and v != 0.0 and abs(v) < _TINY:
-        _add(problems, f"{what} {v:g} is a subnormal number, too small to compute with; give 0 "
-             f"or a magnitude of at least {_TINY:g}", field, row)
-        return None
-    if integer and v != math.floor(v):
-        _add(problems, f"{what} must be a whole number, got {v:g}", field, row)
-        return None
+            return math.nan, f"is too large: {_fmt(value)} does not fit a 64-bit float"
+    return (v, None) if math.isfinite(v) else (v, f"must be finite, got {v}")
+
+
+def _outside(v: float, low, high, low_inclusive: bool, high_inclusive: bool) -> str | None:
+    """Why ``v`` lies outside the range (naming the side broken), or None."""
     if low is not None and (v < low or (v == low and not low_inclusive)):
-        _add(problems, f"{what} must be {'>=' if low_inclusive else '>'} {_fmt(low)}, got "
-             f"{_fmt(v)}", field, row)
-        return None
+        return f"must be {'>=' if low_inclusive else '>'} {_fmt(low)}, got {_fmt(v)}"
     if high is not None and (v > high or (v == high and not high_inclusive)):
-        _add(problems, f"{what} must be {'<=' if high_inclusive else '<'} {_fmt(high)}, got "
-             f"{_fmt(v)}", field, row)
-        return None
-    return int(v) if integer else v
+        return f"must be {'<=' if high_inclusive else '<'} {_fmt(high)}, got {_fmt(v)}"
+    return None
 
 
 def number_pair(value, field: str | None, problems: list, *, name: str | None = None,
@@ -285,8 +286,7 @@ def number_pair(value, field: str | None, problems: list, *, name: str | None = 
     what = name or leaf(field)
     if value is MISSING or value is None:
         if required:
-            _add(problems, f"{what} is required" + (f": {required}" if isinstance(required, str)
-                                                    else ""), field, row)
+            _add(problems, _missing(what, required), field, row)
         return None
     given = value
     if text and isinstance(value, str):
@@ -636,7 +636,7 @@ def weights(value, field: str, problems: list, *, nullable: bool = True) -> dict
     """
     if value is None or value is MISSING:
         if not nullable:
-            _add(problems, f"{leaf(field)} is required", field, None)
+            _add(problems, _missing(leaf(field), True), field, None)
         return None
     if not isinstance(value, dict):
         _add(problems, f"{leaf(field)} must be an object of load group -> number, got "

@@ -74,7 +74,7 @@ def test_number_missing_null_and_text():
     assert v.number(v.MISSING, "x", p) is None and p == []
     assert v.number(None, "x", p, nullable=True) is None and p == []
     assert v.number(v.MISSING, "depth_km", p, required="depth below the surface in km") is None
-    assert messages(p) == ["depth_km is required: depth below the surface in km"]
+    assert messages(p) == ["missing 'depth_km' (depth below the surface in km)"]
     p = []
     assert v.number(" -3e2 ", "c", p, text=True) == -300.0
     assert v.number("abc", "c", p, text=True, row=4) is None
