@@ -24,6 +24,7 @@ Layer: base (imports only the standard library, numpy and :mod:`stressmap.errors
 
 from __future__ import annotations
 
+import json
 import math
 import re
 import sys
@@ -147,6 +148,26 @@ def _fmt(v) -> str:
 
 def _missing(what: str, required) -> str:
     return f"missing {what!r}" + (f" ({required})" if isinstance(required, str) else "")
+
+
+def _short(value) -> str:
+    """A value as JSON-like text of at most 60 characters (arrays shown, not described).
+
+    Examples
+    --------
+    >>> _short([1.0, float("nan"), True]), len(_short("x" * 70)), _short({1})
+    ('[1.0, NaN, true]', 60, 'set')
+    """
+    if isinstance(value, (list, tuple)):
+        try:
+            text = json.dumps(list(value))
+        except (TypeError, ValueError):
+            text = describe(value)
+    elif isinstance(value, str):
+        text = repr(value)
+    else:
+        text = describe(value)
+    return text if len(text) <= 60 else text[:57] + "..."
 
 
 def _add(problems: list, message: str, field, row) -> None:
@@ -582,7 +603,7 @@ def bbox(value, field: str | None, problems: list, *, row: int | None = None,
     west 5 and east 5 must differ: the box has no width (-180, ..., 180, ... is the whole globe)
     south 10 must be below north 5, both within [-90, 90]
     west -180 and east 360 span 540 degrees of longitude; at most 360
-    expected four numbers W,S,E,N in degrees, got the string '1,2,3'
+    expected four finite numbers [W, S, E, N] in degrees (W,S,E,N in text), got [1.0, 2.0, 3.0]
     """
     values = value
     if text and isinstance(value, str):
@@ -596,9 +617,9 @@ def bbox(value, field: str | None, problems: list, *, row: int | None = None,
     else:
         nums = [number(v, field, inner) for v in values]
     if nums is None or any(v is None for v in nums):
-        _add(problems, f"expected four numbers W,S,E,N in degrees, got {describe(value)}"
-             if text and isinstance(value, str) else
-             f"expected four finite numbers [W, S, E, N], got {describe(value)}", field, row)
+        shown = _short(values if isinstance(values, (list, tuple)) else value)
+        _add(problems, f"expected four finite numbers [W, S, E, N] in degrees"
+             f"{' (W,S,E,N in text)' if text else ''}, got {shown}", field, row)
         return None
     w, s, e, n = nums
     n0 = len(problems)
