@@ -536,11 +536,15 @@ def positions(value, field: str, problems: list, *, min_count: int = 1,
     return np.asarray(out, dtype=float).reshape(-1, 2)
 
 
-def lonlat_arrays(lon, lat, field_of: Callable[[int], str], problems: list, *,
-                  lon_range: tuple[float, float] | None = LON_RANGE,
+def lonlat_arrays(lon, lat, field_of, problems: list, *,
+                  lon_range: tuple[float, float] | None = LON_RANGE, first_row: int = 1,
                   max_listed: int = 20) -> bool:
-    """Check coordinate arrays at once (vectorised); one problem per bad row, at most
-    ``max_listed`` per axis, rows 1-based. Returns True when all are in range.
+    """Check coordinate arrays at once (vectorised): NaN/infinity and out-of-range values, one
+    problem per bad row and axis (at most ``max_listed`` each, then one counting the rest).
+    Returns True when all are good.
+
+    ``field_of`` names the field of row i: a function ``i -> str`` (``points[i]``) or a pair of
+    column names ``("lon", "lat")``. Rows are numbered from ``first_row``.
 
     Examples
     --------
@@ -550,18 +554,28 @@ def lonlat_arrays(lon, lat, field_of: Callable[[int], str], problems: list, *,
     >>> for q in p: print(q["field"], q["row"], q["message"])
     points[1] 2 latitude 95 is outside [-90, 90]
     points[2] 3 longitude 400 is outside [-360, 360]
+    >>> p = []
+    >>> lonlat_arrays([np.nan, 1, 2], [0, 0, 0], ("lon", "lat"), p, max_listed=0)
+    False
+    >>> p
+    [{'message': '1 more rows with bad longitude', 'field': 'lon'}]
     """
     lon = np.asarray(lon, dtype=float)
     lat = np.asarray(lat, dtype=float)
     n0 = len(problems)
-    bad = np.flatnonzero(~((lat >= -90.0) & (lat <= 90.0)))
-    for i in bad[:max_listed].tolist():
-        _add(problems, f"latitude {lat[i]:g} is outside [-90, 90]", field_of(i), i + 1)
-    if lon_range is not None:
-        bad = np.flatnonzero(~((lon >= lon_range[0]) & (lon <= lon_range[1])))
-        for i in bad[:max_listed].tolist():
-            _add(problems, f"longitude {lon[i]:g} is outside [{lon_range[0]:g}, "
-                 f"{lon_range[1]:g}]", field_of(i), i + 1)
+    axes = (("latitude", lat, (-90.0, 90.0), 1), ("longitude", lon, lon_range, 0))
+    for word, values, rng, k in axes:
+        name = field_of if callable(field_of) else (lambda i, k=k: field_of[k])
+        finite = np.isfinite(values)
+        bad = ~finite if rng is None else ~(finite & (values >= rng[0]) & (values <= rng[1]))
+        rows = np.flatnonzero(bad)
+        for i in rows[:max_listed].tolist():
+            why = (f"must be a finite number, got {values[i]}" if not finite[i] else
+                   f"{values[i]:g} is outside [{rng[0]:g}, {rng[1]:g}]")
+            _add(problems, f"{word} {why}", name(i), i + first_row)
+        if rows.size > max_listed:
+            _add(problems, f"{rows.size - max_listed} more rows with bad {word}",
+                 None if callable(field_of) else field_of[k], None)
     return len(problems) == n0
 
 

@@ -136,7 +136,16 @@ def test_lonlat_arrays_limits_listed_rows():
     p = []
     lat = np.full(50, 95.0)
     assert not v.lonlat_arrays(np.zeros(50), lat, lambda i: f"points[{i}]", p, max_listed=5)
-    assert len(p) == 5 and p[0]["row"] == 1 and p[4]["field"] == "points[4]"
+    assert len(p) == 6 and p[0]["row"] == 1 and p[4]["field"] == "points[4]"
+    assert p[5]["message"] == "45 more rows with bad latitude"
+
+
+def test_lonlat_arrays_names_columns_and_refuses_nan():
+    p = []
+    assert not v.lonlat_arrays([np.nan, 1.0, 200.0], [0.0, np.inf, 0.0], ("lon", "lat"), p,
+                               first_row=2)
+    assert [(q["field"], q["row"]) for q in p] == [("lat", 3), ("lon", 2), ("lon", 4)]
+    assert "finite" in p[0]["message"] and "outside [-180, 180]" in p[2]["message"]
 
 
 @pytest.mark.parametrize("box, width", [
