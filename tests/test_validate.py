@@ -6,6 +6,8 @@ import sys
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from stressmap import validate as v
 from stressmap.errors import InputError, ModelValidationError
@@ -290,3 +292,34 @@ def test_plate_position_and_cli_bbox_and_grid_use_the_one_box_rule(tmp_path):
     p = []
     v.position([10.0, 95.0], field, p)
     assert _plate_problem(doc, field) == p[0]["message"]
+
+
+# -- no JSON value makes a checker raise -------------------------------------------------------
+
+
+JSON = st.recursive(
+    st.none() | st.booleans() | st.integers() | st.floats() | st.text(max_size=20),
+    lambda inner: st.lists(inner, max_size=5) | st.dictionaries(st.text(max_size=5), inner, max_size=5),
+    max_leaves=12)
+
+
+@settings(max_examples=300, deadline=None)
+@given(JSON)
+def test_any_json_value_gives_a_value_or_named_problems(value):
+    checks = [
+        lambda p: v.number(value, "f", p, low=0, high=1, integer=True),
+        lambda p: v.number(value, "f", p, text=True, required=True),
+        lambda p: v.number_pair(value, "f", p, low=0, text=","),
+        lambda p: v.choice(value, ("a", "b"), "f", p, casefold=True),
+        lambda p: v.boolean(value, "f", p, text=True),
+        lambda p: v.text(value, "f", p, max_length=5),
+        lambda p: v.position(value, "f", p, text=True, mapping=True),
+        lambda p: v.positions(value, "f", p, min_count=2),
+        lambda p: v.bbox(value, "f", p, text=True),
+        lambda p: v.weights(value, "f", p),
+    ]
+    for check in checks:
+        p = []
+        out = check(p)
+        assert (out is None) == bool(p) or (out is None and not p)
+        assert all(q["field"].startswith("f") and q["message"] for q in p)
