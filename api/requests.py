@@ -21,8 +21,8 @@ from stressmap_api.problems import ApiProblem
 from stressmap_api.store import document_digest
 
 from stressmap.analyses.indicators import indicators_from_csv_text, indicators_from_geojson
-from stressmap.constants import EARTH_RADIUS_KM
 from stressmap.errors import InputError, problem
+from stressmap.geo import grid
 from stressmap.model.plate import parse_plate
 from stressmap.model.preflight import check_solvable, estimate_mesh_nodes
 
@@ -48,7 +48,6 @@ __all__ = [
 ]
 
 FORMATS = ("geojson", "csv", "netcdf", "png")
-_KM_PER_DEG = math.radians(1.0) * EARTH_RADIUS_KM
 _MAX_ERRORS = 20  # problems listed per request (the count of the rest is given)
 #: Deepest nesting of arrays/objects read from a body (a GeoJSON MultiPolygon needs 4 inside its
 #: geometry; requests wrap it in at most a few more). Deeper bodies are refused before any use.
@@ -330,8 +329,8 @@ def parse_spacing(value, field: str) -> float:
 
 
 def grid_size(bbox, spacing_km: float) -> int:
-    """Number of grid nodes over ``bbox`` at ``spacing_km`` (as :func:`stressmap.model.predict_grid`
-    lays them out: ``spacing_km`` along meridians and along the box's middle parallel).
+    """Number of grid nodes over ``bbox`` at ``spacing_km`` (the one grid rule,
+    :func:`stressmap.geo.grid.grid_size`, as :func:`stressmap.model.predict_grid` lays them out).
 
     Examples
     --------
@@ -340,14 +339,7 @@ def grid_size(bbox, spacing_km: float) -> int:
     >>> grid_size((170.0, 0.0, -170.0, 1.0), 111.19)  # across the antimeridian
     42
     """
-    w, s, e, n = bbox
-    if e < w:
-        e += 360.0
-    dlat = spacing_km / _KM_PER_DEG
-    dlon = dlat / max(math.cos(math.radians(0.5 * (s + n))), 1e-3)
-    nx = math.floor((e - w) / dlon + 1e-9) + 1
-    ny = math.floor((n - s) / dlat + 1e-9) + 1
-    return int(nx * ny)
+    return grid.grid_size(bbox, spacing_km)
 
 
 def _polygon(value, field: str):

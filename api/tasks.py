@@ -22,7 +22,7 @@ from stressmap.analyses.ensemble import ensemble_grid, ensemble_points
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
 from stressmap.formats import export
-from stressmap.geo.gridmask import mask_dataset, polygon_keep
+from stressmap.geo.grid import mask_dataset, polygon_mask
 from stressmap.io.atomic import write_bytes_atomic
 from stressmap.io.modeldir import write_model
 from stressmap.model import build_model
@@ -100,8 +100,8 @@ def run_ensemble_job(data_dir: str, model_id: str, job_id: str, spec: dict, prog
     else:
         ds = ensemble_grid(model, spec["bbox"], spec["spacing_km"], **kwargs)
         if spec.get("polygon_wkt"):
-            keep = polygon_keep(shapely.from_wkt(spec["polygon_wkt"]), ds["lon"].values,
-                                ds["lat"].values)
+            keep = polygon_mask(ds["lon"].values[None, :], ds["lat"].values[:, None],
+                                shapely.from_wkt(spec["polygon_wkt"]))
             ds = mask_dataset(ds, keep)
     attrs = {"caution": CAUTION, "model_id": model_id, "model_name": meta.get("name") or "",
              "build_time": meta.get("build_time") or ""}

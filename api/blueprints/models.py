@@ -13,7 +13,7 @@ from stressmap_api.tasks import build_and_store
 
 from stressmap.errors import InputError, problem
 from stressmap.formats.boundary import boundary_geojson
-from stressmap.geo.gridmask import mask_dataset, polygon_keep
+from stressmap.geo.grid import mask_dataset, polygon_mask
 from stressmap.model import predict_grid, predict_points
 from stressmap.model.boundary import segment_forces
 
@@ -90,7 +90,8 @@ def predict_region(model, bbox, spacing_km, polygon=None, weights=None):
 
     ds = predict_grid(model, bbox=bbox, spacing_km=spacing_km, weights=weights)
     if polygon is not None:
-        ds = mask_dataset(ds, polygon_keep(polygon, ds["lon"].values, ds["lat"].values))
+        ds = mask_dataset(ds, polygon_mask(ds["lon"].values[None, :], ds["lat"].values[:, None],
+                                           polygon))
     return ds
 
 

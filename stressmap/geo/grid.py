@@ -33,6 +33,7 @@ from stressmap.errors import InputError, problem
 from stressmap.geo import sphere
 
 __all__ = [
+    "mask_dataset",
     "KM_PER_DEG",
     "MIN_SPACING_KM",
     "grid_shape",
@@ -215,3 +216,38 @@ def polygon_mask(lon, lat, polygon, *, arcs: str = "lonlat") -> np.ndarray:
     inside = np.zeros(lon.shape, dtype=bool)
     inside[near] = shapely.contains_xy(shapely.Polygon(np.column_stack([gx, gy])), x, y)
     return inside
+
+
+def mask_dataset(ds, keep_lat_lon: np.ndarray):
+    """``ds`` (an xarray Dataset on ``lat``, ``lon``) with every variable on (lat, lon) blanked
+    outside ``keep`` ((n_lat, n_lon) booleans, e.g. from :func:`polygon_mask`): False for
+    booleans, 0 for integers (an ``inside`` flag), "" for text, NaN otherwise; attributes kept.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> ds = xr.Dataset({"v": (("lat", "lon"), [[1.0, 2.0]]), "inside": (("lat", "lon"), [[1, 1]])},
+    ...                 coords={"lat": [0.0], "lon": [0.0, 1.0]})
+    >>> out = mask_dataset(ds, np.array([[True, False]]))
+    >>> out["v"].values.tolist(), out["inside"].values.tolist()
+    ([[1.0, nan]], [[1, 0]])
+    """
+    import xarray as xr  # only callers holding Datasets reach here
+
+    keep = xr.DataArray(np.asarray(keep_lat_lon, dtype=bool), dims=("lat", "lon"),
+                        coords={"lat": ds["lat"], "lon": ds["lon"]})
+    out = ds.copy()
+    for name, var in ds.data_vars.items():
+        if not {"lat", "lon"} <= set(var.dims):
+            continue
+        if var.dtype == bool:
+            new = var & keep
+        elif var.dtype.kind in "iu":
+            new = var.where(keep, 0).astype(var.dtype)
+        elif var.dtype.kind in "USO":
+            new = var.where(keep, "")
+        else:
+            new = var.where(keep)
+        out[name] = new.transpose(*var.dims)
+        out[name].attrs = var.attrs
+    return out
