@@ -75,6 +75,13 @@ BODIES = {
     ("POST", "/models/{mid}/calibrate"): {"indicators": INDICATORS, "n_bootstrap": 2,
                                           "n_random": 1, "n_starts": 1, "seed": 1,
                                           "bounds": {"ridge": [0, 2]}},
+    ("POST", "/wells/stability"): {
+        "site": [5.0, 50.0], "depth_km": 3.0, "regime": "strike-slip", "shmax_azimuth_deg": 30.0,
+        "rock": {"ucs_mpa": 60.0}, "planes": ["040/60"],
+        "well": {"azimuth_deg": 120.0, "inclination_deg": 40.0}, "format": "csv"},
+    ("POST", "/wells/profile"): {
+        "site": [5.0, 50.0], "depth_km": 3.0, "regime": "normal", "shmax_azimuth_deg": 30.0,
+        "uncertainty": {"samples": 20}, "format": "json"},
     ("POST", "/models/{mid}/ensembles"): {"points": [[-15.0, -20.0]], "members": 5, "seed": 1,
                                           "percentiles": [10, 90]},
 }
