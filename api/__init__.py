@@ -20,7 +20,7 @@ import tomllib
 from pathlib import Path
 
 from flask import Flask
-from stressmap_api import auth, blueprints, guards, jobs, limits, store
+from stressmap_api import auth, blueprints, guards, jobs, limits, render, store
 from stressmap_api.jsonio import NumpyJSONProvider
 from stressmap_api.problems import register_error_handlers
 
@@ -94,6 +94,7 @@ def create_app(test_config: dict | None = None) -> Flask:
     jobs.init_app(app)  # bounded background worker pool
     auth.init_app(app)  # bearer token for reads (if configured) and CORS allow-list
     limits.init_app(app)  # bounded compute pool for the per-request time limit
+    render.init_app(app)  # client text in pictures drawn as plain text (no mathtext)
 
 
     for info in sorted(pkgutil.iter_modules(blueprints.__path__), key=lambda m: m.name):

@@ -9,14 +9,16 @@ service) and :func:`stressmap.plot.maps.shmax_map`.
 Every spatial response carries the caution, the model id and its build time: GeoJSON as
 top-level members, CSV as leading ``# key: value`` lines, netCDF as global attributes, PNG in the
 caption (and the ``X-Stressmap-Caution`` header). Text drawn into pictures goes through
-:func:`picture_text` (plain text, bounded length), so a model name can neither trigger mathtext
-nor make a picture arbitrarily large.
+:func:`picture_text` (plain text, bounded length), so a model name cannot make a picture
+arbitrarily large; :func:`init_app` turns matplotlib's mathtext off for the service, so ``$`` in
+any client text is drawn as it is.
 """
 
 from __future__ import annotations
 
 import json
 
+import matplotlib
 import numpy as np
 from flask import Response, current_app
 
@@ -25,7 +27,8 @@ from stressmap.formats import export
 from stressmap.model import plate_outline
 from stressmap.plot.maps import shmax_map
 
-__all__ = ["output_meta", "render", "respond", "picture_text", "MIMETYPES", "MAX_PICTURE_TEXT"]
+__all__ = ["output_meta", "render", "respond", "picture_text", "init_app", "MIMETYPES",
+           "MAX_PICTURE_TEXT"]
 
 MIMETYPES = {
     "json": "application/json",
@@ -40,20 +43,25 @@ MAX_PICTURE_TEXT = 160
 
 
 def picture_text(text, limit: int = MAX_PICTURE_TEXT) -> str:
-    """``text`` as plain text for a picture: ``$`` escaped (matplotlib reads ``$...$`` as math),
-    control characters dropped, at most ``limit`` characters (an ellipsis marks a cut).
+    """``text`` for a picture: control characters dropped, at most ``limit`` characters (an
+    ellipsis marks a cut). ``$`` needs no escape: :func:`init_app` turns mathtext off.
 
     Examples
     --------
-    >>> picture_text("$\\\\frac{$ plate")
-    '\\\\$\\\\frac{\\\\$ plate'
+    >>> picture_text("a $b_{$ plate" + chr(27))
+    'a $b_{$ plate'
     >>> len(picture_text("x" * 1000))
     160
     """
     text = "".join(ch for ch in str(text) if ch.isprintable())
-    if len(text) > limit:
-        text = text[: limit - 1] + "\u2026"
-    return text.replace("$", r"\$")
+    return text[: limit - 1] + "\u2026" if len(text) > limit else text
+
+
+def init_app(app) -> None:
+    """Draw client text in pictures as plain text: matplotlib reads ``$...$`` as mathtext, so a
+    model, plane or fault name holding ``$\\frac{$`` would break every picture that shows it.
+    The package's own pictures use no mathtext. Process-wide (matplotlib's rcParams)."""
+    matplotlib.rcParams["text.parse_math"] = False
 
 
 def output_meta(meta: dict, weights: dict | None = None) -> dict:

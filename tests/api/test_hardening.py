@@ -330,3 +330,17 @@ def test_an_unexpected_error_logs_a_bounded_record(svc, monkeypatch, caplog):
                    500)
     logged = "".join(r.getMessage() for r in caplog.records)
     assert "RecursionError" in logged and len(logged) < 10_000
+
+
+@pytest.mark.parametrize("url, body", [
+    ("/wells/tendency-net", {"site": [5.0, 50.0], "depth_km": 3.0, "regime": "strike-slip",
+                             "shmax_azimuth_deg": 30.0, "format": "png",
+                             "planes": [{"strike_deg": 40.0, "dip_deg": 60.0,
+                                         "name": "$\\frac{$"}]}),
+    ("/screen", {"site": [-15.0, -20.0], "depth_km": 3.0, "shmax_azimuth_deg": 40.0,
+                 "regime": "normal", "format": "png", "picture": "mohr",
+                 "planes": [{"strike_deg": 40.0, "dip_deg": 60.0, "name": "$\\frac{$"}]}),
+])
+def test_mathtext_in_client_names_is_drawn_as_text(svc, url, body):
+    resp = svc[1].post(API + url, json=body)
+    assert resp.status_code == 200 and resp.data[:4] == b"\x89PNG"

@@ -5,10 +5,11 @@ For each operation a valid request (the coarse fictional demo model, small count
 every member at every depth (the first element of each array) is replaced by hostile values or
 removed; query parameters and path ids get hostile strings. Each field gets :data:`PER_FIELD`
 values chosen in rotation (seeded by its path), so every field meets several kinds of value and
-every value meets many fields, in bounded time. Hostile values: lone surrogates (RFC 8259 section
+every value meets many fields, in bounded time (2 per field for picture requests). Hostile values: lone surrogates (RFC 8259 section
 8.2), deep nesting, huge/tiny/denormal/non-finite numbers (RFC 8259 section 6 has no NaN or
 Infinity), integers beyond float64, wrong types, empty and very long strings, control characters,
-formula prefixes (OWASP CSV Injection).
+formula prefixes (OWASP CSV Injection), matplotlib mathtext (``$...$``) in names drawn
+into pictures.
 
 A 503 with ``Retry-After`` is a deliberate resource answer (a full job queue or the time limit),
 not a failure; every other 5xx is. Source of the expectations: RFC 9457 (problem details).
@@ -29,7 +30,7 @@ from stressmap_api import create_app
 from stressmap_api.store import Store
 
 API = "/api/v1"
-PER_FIELD = 5
+PER_FIELD = 4
 CASE_LIMIT_S = 8.0
 _DELETE = object()
 
@@ -44,7 +45,7 @@ def _nested(depth: int):
 HOSTILE = [
     "\ud800", "x\udfffy", _nested(200), 1e308, -1e308, 5e-324, 2 ** 64, 10 ** 30, float("nan"),
     float("inf"), True, None, "", "y" * 100_000, "\x00\x1b\r\n=HYPERLINK(1)", [], {},
-    [1, 2, 3], {"a": {"b": 1}}, -1, 0, "@SUM(1)", _DELETE,
+    [1, 2, 3], {"a": {"b": 1}}, -1, 0, "@SUM(1)", "$\\frac{$", _DELETE,
 ]
 HOSTILE_TEXT = ["\ud800", "%00", "../../etc/passwd", "-1e308", "nan", "1e-324", "y" * 5000,
                 "=cmd|' /C calc'!A0", "0,0,0,0", ",,,", " ", "\x1b[31m"]
@@ -79,6 +80,13 @@ BODIES = {
         "site": [5.0, 50.0], "depth_km": 3.0, "regime": "strike-slip", "shmax_azimuth_deg": 30.0,
         "rock": {"ucs_mpa": 60.0}, "planes": ["040/60"],
         "well": {"azimuth_deg": 120.0, "inclination_deg": 40.0}, "format": "csv"},
+    ("POST", "/wells/tendency-net"): {
+        "site": [5.0, 50.0], "depth_km": 3.0, "regime": "strike-slip", "shmax_azimuth_deg": 30.0,
+        "planes": [{"strike_deg": 40.0, "dip_deg": 60.0, "name": "P1"}], "format": "png"},
+    ("POST", "/screen#png"): {
+        "site": [-15.0, -20.0], "depth_km": 3.0, "shmax_azimuth_deg": 40.0, "regime": "normal",
+        "planes": [{"strike_deg": 130.0, "dip_deg": 80.0, "name": "cross"}], "format": "png",
+        "picture": "mohr"},
     ("POST", "/wells/profile"): {
         "site": [5.0, 50.0], "depth_km": 3.0, "regime": "normal", "shmax_azimuth_deg": 30.0,
         "uncertainty": {"samples": 20}, "format": "json"},
@@ -124,9 +132,10 @@ def _rotation(path_text: str, pool: list, k: int) -> list:
 
 def _cases():
     for (method, url), body in BODIES.items():
+        per_field = 2 if body.get("format") == "png" else PER_FIELD  # pictures take longer
         for path in _paths(body):
             text = "/".join(map(str, path))
-            for value in _rotation(text, HOSTILE, PER_FIELD):
+            for value in _rotation(text + url, HOSTILE, per_field):
                 yield method, url.split("#")[0], _mutated(body, path, value), None, text
     for url, params in QUERIES.items():
         for key in params:
