@@ -24,7 +24,7 @@ from stressmap_api import auth, blueprints, guards, jobs, limits, render, store
 from stressmap_api.jsonio import NumpyJSONProvider
 from stressmap_api.problems import register_error_handlers
 
-__all__ = ["create_app", "DEFAULTS", "API_PREFIX"]
+__all__ = ["API_PREFIX", "DEFAULTS", "create_app"]
 
 API_PREFIX = "/api/v1"
 

@@ -19,7 +19,7 @@ import hmac
 from flask import current_app, request
 from stressmap_api.problems import ApiProblem
 
-__all__ = ["require_token", "check_token", "init_app", "PUBLIC_ENDPOINTS"]
+__all__ = ["PUBLIC_ENDPOINTS", "check_token", "init_app", "require_token"]
 
 #: Endpoints that never need a token (service metadata and documentation).
 PUBLIC_ENDPOINTS = {"meta.health", "meta.openapi", "docs.docs_page"}
@@ -62,13 +62,13 @@ def require_token(view):
 
 def _reads_guard():
     if not current_app.config.get("READS_NEED_TOKEN"):
-        return None
+        return
     if request.method == "OPTIONS" or request.endpoint in PUBLIC_ENDPOINTS:
-        return None
+        return
     if request.endpoint is None:  # unknown route: let the 404/405 handler answer
-        return None
+        return
     check_token()
-    return None
+    return
 
 
 def _cors_headers(response):

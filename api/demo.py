@@ -11,8 +11,8 @@ import logging
 from importlib import resources
 
 import numpy as np
-from stressmap_api.tasks import build_and_store
 from stressmap_api.store import Store, document_digest
+from stressmap_api.tasks import build_and_store
 
 from stressmap.model import locate
 from stressmap.model.plate import parse_plate

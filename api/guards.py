@@ -16,7 +16,7 @@ from __future__ import annotations
 from flask import current_app, request
 from stressmap_api.problems import ApiProblem
 
-__all__ = ["init_app", "host_allowed"]
+__all__ = ["host_allowed", "init_app"]
 
 
 def host_allowed(host: str, allowed) -> bool:
@@ -46,22 +46,22 @@ def host_allowed(host: str, allowed) -> bool:
 def _check_host():
     allowed = current_app.config.get("ALLOWED_HOSTS")
     if allowed is None:
-        return None
+        return
     if not host_allowed(request.host, allowed):
         raise ApiProblem(400, "Host not served",
                          f"this service does not answer for host {request.host[:100]!r}; its "
                          "operator lists the served names in ALLOWED_HOSTS")
-    return None
+    return
 
 
 def _check_media_type():
     if request.method not in ("POST", "PUT", "PATCH"):
-        return None
+        return
     mimetype = request.mimetype or ""
     if mimetype == "application/json" or mimetype.endswith("+json"):
-        return None
+        return
     if not request.content_length and not mimetype and request.endpoint is None:
-        return None  # unknown route: let 404/405 answer
+        return  # unknown route: let 404/405 answer
     raise ApiProblem(415, "Unsupported Media Type",
                      f"send the body as JSON with 'Content-Type: application/json' (got "
                      f"{(request.content_type or 'none')[:80]!r})",

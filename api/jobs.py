@@ -40,7 +40,7 @@ from stressmap_api.store import Store, get_store, new_id, owner_token, register_
 
 from stressmap.errors import InputError, StorageError, StressmapError
 
-__all__ = ["JobRunner", "get_jobs", "init_app", "JobQueueFull"]
+__all__ = ["JobQueueFull", "JobRunner", "get_jobs", "init_app"]
 
 _log = logging.getLogger(__name__)
 _EXTENSION = "stressmap_jobs"

@@ -30,7 +30,7 @@ from stressmap_api.problems import ApiProblem
 
 from stressmap.errors import StressmapError
 
-__all__ = ["run_limited", "run_isolated", "init_app"]
+__all__ = ["init_app", "run_isolated", "run_limited"]
 
 _EXTENSION = "stressmap_compute"
 _PROCESSES = "stressmap_compute_processes"

@@ -11,7 +11,7 @@ from werkzeug.exceptions import HTTPException
 
 from stressmap.errors import InputError, NotFoundError, StorageError
 
-__all__ = ["problem_response", "register_error_handlers", "ApiProblem", "scrub_paths"]
+__all__ = ["ApiProblem", "problem_response", "register_error_handlers", "scrub_paths"]
 
 PROBLEM_MIME = "application/problem+json"
 _log = logging.getLogger(__name__)

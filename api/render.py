@@ -27,8 +27,15 @@ from stressmap.formats import export
 from stressmap.model import plate_outline
 from stressmap.plot.maps import shmax_map
 
-__all__ = ["output_meta", "render", "respond", "picture_text", "init_app", "MIMETYPES",
-           "MAX_PICTURE_TEXT"]
+__all__ = [
+    "MAX_PICTURE_TEXT",
+    "MIMETYPES",
+    "init_app",
+    "output_meta",
+    "picture_text",
+    "render",
+    "respond",
+]
 
 MIMETYPES = {
     "json": "application/json",
@@ -85,7 +92,7 @@ def _flat_meta(meta: dict) -> dict:
 def _flatten(ds):
     """lon, lat, azimuth, regime index (and inside) of a point or grid Dataset, as 1-D arrays."""
     if "point" in ds.dims:
-        get = lambda name: np.asarray(ds[name].values).ravel()  # noqa: E731
+        get = lambda name: np.asarray(ds[name].values).ravel()
         return get("lon"), get("lat"), get("shmax_azimuth_deg"), get("regime_index")
     lon2, lat2 = np.meshgrid(np.asarray(ds["lon"].values), np.asarray(ds["lat"].values))
     az = np.asarray(ds["shmax_azimuth_deg"].transpose("lat", "lon").values).ravel()

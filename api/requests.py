@@ -13,6 +13,7 @@ from __future__ import annotations
 import json
 import math
 import sys
+from dataclasses import dataclass
 
 import numpy as np
 import shapely
@@ -20,7 +21,10 @@ from shapely.geometry import shape
 from stressmap_api.problems import ApiProblem
 from stressmap_api.store import document_digest
 
-from stressmap.analyses.indicators import indicators_from_csv_text, indicators_from_geojson
+from stressmap.analyses.indicators import (
+    indicators_from_csv_text,
+    indicators_from_geojson,
+)
 from stressmap.errors import InputError, problem
 from stressmap.geo import grid
 from stressmap.model.plate import parse_plate
@@ -30,21 +34,24 @@ __all__ = [
     "FORMATS",
     "MAX_JSON_DEPTH",
     "MAX_NAME_CHARS",
-    "json_body",
-    "object_body",
+    "Target",
+    "check_plane_work",
     "choice",
-    "flag",
-    "number",
     "count",
+    "flag",
+    "grid_size",
+    "json_body",
+    "number",
+    "object_body",
+    "parse_bbox_text",
+    "parse_format",
     "parse_indicators",
     "parse_model_document",
     "parse_points",
     "parse_region",
+    "parse_target",
     "parse_weights",
-    "parse_format",
-    "parse_bbox_text",
     "parse_weights_text",
-    "grid_size",
 ]
 
 FORMATS = ("geojson", "csv", "netcdf", "png")
@@ -568,6 +575,62 @@ def parse_model_id(value, field: str = "model_id") -> str:
         raise InputError(f"{field} must be a string",
                          [problem(f"expected a model id, got {_short(value)}", field=field)])
     return value
+
+
+# ----------------------------------------------------------------------------- where to predict
+
+@dataclass(frozen=True)
+class Target:
+    """Where a request asks for results: points (``lon``, ``lat`` arrays, ``properties`` of
+    GeoJSON features or None) or a grid (``bbox``, ``spacing_km``, optional ``polygon``)."""
+
+    lon: np.ndarray | None = None
+    lat: np.ndarray | None = None
+    properties: list | None = None
+    bbox: tuple | None = None
+    spacing_km: float | None = None
+    polygon: object = None
+
+    @property
+    def grid(self) -> bool:
+        return self.bbox is not None
+
+    @property
+    def size(self) -> int:
+        """Points, or nodes of the grid."""
+        return grid_size(self.bbox, self.spacing_km) if self.grid else int(self.lon.size)
+
+
+def parse_target(body: dict, max_points: int, max_grid_points: int, what: str = "a prediction"):
+    """Exactly one of ``points`` and ``region`` (``spacing_km`` at the top level or in region,
+    only with region)."""
+    if ("points" in body) == ("region" in body):
+        raise InputError("give exactly one of points and region",
+                         [problem(f"{what} needs either points or region", field="points")])
+    if "points" in body:
+        if body.get("spacing_km") is not None:
+            raise InputError("spacing_km goes with region, not points",
+                             [problem("remove spacing_km or use region", field="spacing_km")])
+        lon, lat, props = parse_points(body["points"], max_points)
+        return Target(lon=lon, lat=lat, properties=props)
+    bbox, spacing, polygon = parse_region(body["region"], body.get("spacing_km"), max_grid_points)
+    return Target(bbox=bbox, spacing_km=spacing, polygon=polygon)
+
+
+def check_plane_work(req, max_planes: int, max_plane_samples: int) -> None:
+    """Bound the work of a screening request (:class:`stressmap.analyses.sitescreen` request):
+    planes plus trace vertices at most ``max_planes``, times samples at most
+    ``max_plane_samples``."""
+    n_planes = req.plane_strike_deg.size + (
+        sum(len(a) for a in req.traces["lines"]) if req.traces else 0)
+    if max_planes and n_planes > max_planes:
+        raise InputError(f"too many planes and trace vertices ({n_planes}); the limit is "
+                         f"{max_planes}", [problem("split the request", field="faults")])
+    if n_planes * max(req.samples, 1) > max_plane_samples:
+        raise InputError(f"planes x samples = {n_planes * req.samples} exceeds "
+                         f"{max_plane_samples}",
+                         [problem("use fewer samples or fewer planes",
+                                  field="uncertainty.samples")])
 
 
 # ----------------------------------------------------------------------------- indicator sets

@@ -15,7 +15,7 @@ from waitress import create_server as _waitress_server
 from waitress.channel import HTTPChannel
 from waitress.task import ErrorTask
 
-__all__ = ["create_server", "ProblemChannel"]
+__all__ = ["ProblemChannel", "create_server"]
 
 
 class _ProblemErrorTask(ErrorTask):

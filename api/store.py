@@ -35,7 +35,7 @@ import threading
 import uuid
 from collections import OrderedDict
 from contextlib import contextmanager
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from pathlib import Path
 
 from stressmap_api.errors import ModelNotReady, scrub_paths
@@ -46,16 +46,16 @@ from stressmap.io.modeldir import read_model
 
 __all__ = [
     "ID_PATTERN",
-    "Store",
     "ModelNotReady",
+    "Store",
+    "check_id",
+    "document_digest",
     "get_store",
     "init_app",
     "new_id",
-    "check_id",
-    "utc_now",
-    "document_digest",
     "owner_token",
     "register_owner",
+    "utc_now",
 ]
 
 _log = logging.getLogger(__name__)
@@ -97,7 +97,7 @@ CREATE INDEX IF NOT EXISTS models_digest ON models (digest, status);
 
 def utc_now() -> str:
     """Current UTC time as ISO-8601 with a ``Z`` suffix (seconds precision)."""
-    return datetime.now(timezone.utc).replace(microsecond=0).isoformat().replace("+00:00", "Z")
+    return datetime.now(UTC).replace(microsecond=0).isoformat().replace("+00:00", "Z")
 
 
 def new_id() -> str:

@@ -27,7 +27,7 @@ from stressmap.io.atomic import write_bytes_atomic
 from stressmap.io.modeldir import write_model
 from stressmap.model import build_model
 
-__all__ = ["build_and_store", "mesh_nodes", "run_ensemble_job", "ensemble_links", "ENSEMBLE_FILE"]
+__all__ = ["ENSEMBLE_FILE", "build_and_store", "ensemble_links", "mesh_nodes", "run_ensemble_job"]
 
 ENSEMBLE_FILE = "ensemble.nc"
 

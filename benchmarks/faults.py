@@ -23,7 +23,6 @@ with Retry-After, the server alive at the end). Traffic goes to 127.0.0.1 only.
 from __future__ import annotations
 
 import argparse
-import json
 import os
 import socket
 import statistics
@@ -33,7 +32,6 @@ from pathlib import Path
 
 import httpx
 from load import REPO, start_server, stop_server
-
 from stressmap_api.store import Store
 
 INDICATORS = "id,lon,lat,type,azimuth_deg\n" + "\n".join(

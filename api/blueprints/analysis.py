@@ -39,7 +39,7 @@ from stressmap.formats import export
 from stressmap.formats.hdf5lock import NETCDF_LOCK
 from stressmap.model import plate_outline
 
-__all__ = ["bp", "run_calibration", "ENSEMBLE_FILE"]
+__all__ = ["ENSEMBLE_FILE", "bp", "run_calibration"]
 
 bp = Blueprint("analysis", __name__)
 
@@ -122,25 +122,17 @@ def create_ensemble(model_id: str):
                                                          field="members")])
     members = requests.count(body.get("members"), "members", 1000, 1,
                              int(cfg.get("MAX_ENSEMBLE_MEMBERS") or 10_000))
-    if ("points" in body) == ("region" in body):
-        raise InputError("give exactly one of points and region",
-                         [problem("an ensemble needs either points or region", field="points")])
     spec: dict = {"members": members,
                   "seed": requests.count(body.get("seed"), "seed", 0, 0, _SEED_MAX)}
-    props = None
-    if "points" in body:
-        if body.get("spacing_km") is not None:
-            raise InputError("spacing_km goes with region, not points",
-                             [problem("remove spacing_km or use region", field="spacing_km")])
-        lon, lat, props = requests.parse_points(body["points"], int(cfg.get("MAX_POINTS") or 0))
-        spec["points"] = [lon.tolist(), lat.tolist()]
-        n_points = lon.size
+    target = requests.parse_target(body, int(cfg.get("MAX_POINTS") or 0),
+                                   int(cfg.get("MAX_GRID_POINTS") or 0), "an ensemble")
+    props = target.properties
+    if target.grid:
+        spec.update(bbox=list(target.bbox), spacing_km=target.spacing_km,
+                    polygon_wkt=target.polygon.wkt if target.polygon is not None else None)
     else:
-        bbox, spacing, polygon = requests.parse_region(body["region"], body.get("spacing_km"),
-                                                       int(cfg.get("MAX_GRID_POINTS") or 0))
-        spec.update(bbox=list(bbox), spacing_km=spacing,
-                    polygon_wkt=polygon.wkt if polygon is not None else None)
-        n_points = requests.grid_size(bbox, spacing)
+        spec["points"] = [target.lon.tolist(), target.lat.tolist()]
+    n_points = target.size
     work_limit = int(cfg.get("MAX_ENSEMBLE_WORK") or 2_000_000_000)
     if members * n_points > work_limit:
         raise InputError(f"the ensemble is too large: {members:,} members x {n_points:,} points",

@@ -35,7 +35,7 @@ from stressmap.errors import InputError, problem
 from stressmap.io.indicators import indicators_csv, indicators_geojson
 from stressmap.plot.indicators import comparison_map_png, rose_png
 
-__all__ = ["bp", "COMPARE_FORMATS", "SMOOTH_FORMATS"]
+__all__ = ["COMPARE_FORMATS", "SMOOTH_FORMATS", "bp"]
 
 bp = Blueprint("indicators", __name__)
 

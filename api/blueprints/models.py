@@ -11,7 +11,6 @@ from stressmap_api.render import output_meta, render, respond
 from stressmap_api.store import get_store, new_id
 from stressmap_api.tasks import build_and_store
 
-from stressmap.errors import InputError, problem
 from stressmap.formats.boundary import boundary_geojson
 from stressmap.geo.grid import mask_dataset, polygon_mask
 from stressmap.model import predict_grid, predict_points
@@ -105,27 +104,18 @@ def predict(model_id: str):
     store = get_store()
     meta = store.meta(model_id)  # 404 for an unknown or malformed id, before reading the body
     body = requests.object_body(request, {"points", "region", "spacing_km", "weights", "format"})
-    if ("points" in body) == ("region" in body):
-        raise InputError("give exactly one of points and region",
-                         [problem("a prediction needs either points or region", field="points")])
     fmt = requests.parse_format(body.get("format"))
     weights = requests.parse_weights(body.get("weights"))
     cfg = current_app.config
-    if "points" in body:
-        if body.get("spacing_km") is not None:
-            raise InputError("spacing_km goes with region, not points",
-                             [problem("remove spacing_km or use region", field="spacing_km")])
-        lon, lat, props = requests.parse_points(body["points"], int(cfg.get("MAX_POINTS") or 0))
-        grid, args = False, (lon, lat)
-    else:
-        bbox, spacing, polygon = requests.parse_region(body["region"], body.get("spacing_km"),
-                                                      int(cfg.get("MAX_GRID_POINTS") or 0))
-        props, grid = None, True
+    target = requests.parse_target(body, int(cfg.get("MAX_POINTS") or 0),
+                                   int(cfg.get("MAX_GRID_POINTS") or 0))
+    grid, props = target.grid, target.properties
     model = store.load(model_id)  # 409 unless ready
     if grid:
-        ds = run_limited(predict_region, model, bbox, spacing, polygon, weights)
+        ds = run_limited(predict_region, model, target.bbox, target.spacing_km, target.polygon,
+                         weights)
     else:
-        ds = run_limited(_predict_points, model, *args, weights)
+        ds = run_limited(_predict_points, model, target.lon, target.lat, weights)
     stem = f"stressmap-{model_id[:8]}-{'grid' if grid else 'points'}"
     payload = run_limited(render, ds, fmt, output_meta(meta, weights), grid=grid, model=model,
                           extra_properties=props)

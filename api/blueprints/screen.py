@@ -16,10 +16,9 @@ from stressmap_api.store import check_id, get_store
 
 from stressmap.analyses import sitescreen
 from stressmap.analyses.sitescreen import parse_request
-from stressmap.errors import InputError, problem
 from stressmap.plot import screening as plot_screening
 
-__all__ = ["bp", "FORMATS", "PICTURES", "MAX_PLANE_SAMPLES"]
+__all__ = ["FORMATS", "MAX_PLANE_SAMPLES", "PICTURES", "bp"]
 
 bp = Blueprint("screen", __name__)
 
@@ -50,17 +49,8 @@ def screen():
     picture = requests.choice(body.get("picture", request.args.get("picture")), tuple(PICTURES),
                       "picture")
     req = parse_request(body)
-    n_planes = req.plane_strike_deg.size + (
-        sum(len(a) for a in req.traces["lines"]) if req.traces else 0)
-    max_points = int(current_app.config.get("MAX_POINTS") or 0)
-    if max_points and n_planes > max_points:
-        raise InputError(f"too many planes and trace vertices ({n_planes}); the limit is "
-                         f"{max_points}", [problem("split the request", field="faults")])
-    if n_planes * max(req.samples, 1) > MAX_PLANE_SAMPLES:
-        raise InputError(f"planes x samples = {n_planes * req.samples} exceeds "
-                         f"{MAX_PLANE_SAMPLES}",
-                         [problem("use fewer samples or fewer planes",
-                                  field="uncertainty.samples")])
+    requests.check_plane_work(req, int(current_app.config.get("MAX_POINTS") or 0),
+                              MAX_PLANE_SAMPLES)
     model = model_info = None
     if body.get("model_id") is not None:
         model_id = check_id(requests.parse_model_id(body["model_id"]))

@@ -19,7 +19,7 @@ from stressmap.errors import InputError, problem
 from stressmap.formats.wells import csv_table, json_document
 from stressmap.plot import wells as plot_wells
 
-__all__ = ["bp", "ANALYSES", "FORMATS"]
+__all__ = ["ANALYSES", "FORMATS", "bp"]
 
 bp = Blueprint("wells", __name__)
 

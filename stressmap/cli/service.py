@@ -27,7 +27,7 @@ from stressmap.io.modeldir import write_model
 from stressmap.model import build_model, plate_outline, predict_grid
 from stressmap.plot.maps import shmax_map
 
-__all__ = ["register", "load_server_config", "SERVER_DEFAULTS"]
+__all__ = ["SERVER_DEFAULTS", "load_server_config", "register"]
 
 _log = logging.getLogger(__name__)
 

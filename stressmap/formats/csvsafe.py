@@ -9,7 +9,7 @@ become spaces and a formula-like text gets a leading apostrophe (numbers are lef
 
 from __future__ import annotations
 
-__all__ = ["csv_cell", "csv_safe_frame", "FORMULA_PREFIXES"]
+__all__ = ["FORMULA_PREFIXES", "csv_cell", "csv_safe_frame"]
 
 FORMULA_PREFIXES = ("=", "+", "-", "@", "\t", "\r")
 
@@ -38,7 +38,9 @@ def csv_cell(value):
 def csv_safe_frame(frame):
     """A copy of a pandas DataFrame with text cells and column names passed through
     :func:`csv_cell`."""
-    from pandas.api.types import is_string_dtype  # pandas is imported by the callers anyway
+    from pandas.api.types import (
+        is_string_dtype,  # pandas is imported by the callers anyway
+    )
 
     out = frame.copy()
     for c in out.columns:

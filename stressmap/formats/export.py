@@ -19,12 +19,12 @@ from stressmap.formats.csvsafe import csv_cell
 from stressmap.formats.hdf5lock import NETCDF_LOCK
 
 __all__ = [
-    "points_geojson",
-    "points_csv",
-    "grid_geojson",
     "grid_csv",
+    "grid_geojson",
     "grid_netcdf_bytes",
     "netcdf_bytes",
+    "points_csv",
+    "points_geojson",
     "records",
 ]
 

@@ -17,7 +17,7 @@ import numpy as np
 
 from stressmap.units import convert_stress_table, km_to_ft, mpa_to_psi
 
-__all__ = ["in_units", "json_document", "csv_table"]
+__all__ = ["csv_table", "in_units", "json_document"]
 
 _CHANGE_COLUMNS = ("injection_", "depletion_")
 _FORMULA_PREFIXES = ("=", "+", "-", "@", "\t", "\r")

@@ -18,11 +18,11 @@ import numpy as np
 from stressmap.constants import EARTH_RADIUS_KM
 from stressmap.fem.loads import SENSES, edge_geometry
 from stressmap.geo import sphere
-from stressmap.model.predict import resolve_weights
 from stressmap.model.plate import parse_plate
+from stressmap.model.predict import resolve_weights
 from stressmap.physics import forces
 
-__all__ = ["segment_forces", "SIGN_CONVENTION"]
+__all__ = ["SIGN_CONVENTION", "segment_forces"]
 
 SIGN_CONVENTION = ("normal force positive pushes into the plate; shear along the ring direction "
                    "(interior on the left); vectors at anchor_lon/anchor_lat")

@@ -24,7 +24,7 @@ import numpy as np
 from stressmap.constants import EARTH_RADIUS_KM
 from stressmap.errors import InputError, problem
 
-__all__ = ["estimate_mesh_nodes", "refinement_nodes", "check_solvable", "MIN_SHEET"]
+__all__ = ["MIN_SHEET", "check_solvable", "estimate_mesh_nodes", "refinement_nodes"]
 
 _NODE_AREA = math.sqrt(3.0) / 2.0  # km^2 per node per km^2 of edge
 #: Smallest values accepted for the sheet and drag (common practice: lithospheric Young's modulus

@@ -16,7 +16,6 @@ import time
 
 import pytest
 from service_support import coarse_demo_document, store_ready_model
-
 from stressmap_api import create_app
 from stressmap_api.store import ID_PATTERN, Store
 

@@ -22,7 +22,6 @@ import traceback
 
 import pytest
 from service_support import coarse_demo_document, store_ready_model
-
 from stressmap_api import create_app
 from stressmap_api.store import Store, get_store
 

@@ -25,7 +25,6 @@ from urllib.parse import quote
 
 import pytest
 from service_support import coarse_demo_document, store_ready_model
-
 from stressmap_api import create_app
 from stressmap_api.store import Store
 

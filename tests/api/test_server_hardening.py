@@ -15,15 +15,13 @@ is common practice of running a threaded HTTP service.
 from __future__ import annotations
 
 import socket
-import threading
 import time
 from concurrent.futures import ThreadPoolExecutor
 
 import pytest
 from service_support import store_ready_model
-from test_server import Server
-
 from stressmap_api.store import Store
+from test_server import Server
 
 httpx = pytest.importorskip("httpx")
 

@@ -21,7 +21,11 @@ from scipy.integrate import quad
 from stressmap.errors import InputError
 from stressmap.fem.mesh import mesh_plate
 from stressmap.model.plate import parse_plate
-from stressmap.model.preflight import check_solvable, estimate_mesh_nodes, refinement_nodes
+from stressmap.model.preflight import (
+    check_solvable,
+    estimate_mesh_nodes,
+    refinement_nodes,
+)
 
 NODE_AREA = math.sqrt(3.0) / 2.0
 
