@@ -470,7 +470,7 @@ def _draw_indicators(ax, obs: dict, half_len, kx) -> list:
     for kind in [k for k in dict.fromkeys(kinds.tolist()) if k]:
         sel = kinds == kind
         mark = INDICATOR_MARKS.get(kind, _OTHER_MARK)
-        ax.plot(obs["x"][ok][sel], obs["y"][ok][sel], ls="none", marker=mark, ms=4.2,
+        ax.plot(obs["x"][ok][sel], obs["y"][ok][sel], ls="none", marker=mark, ms=3.6,
                 mfc="white", mec="black", mew=0.8, zorder=8, gid=f"indicator-type-{kind}")
         handles.append(Line2D([], [], ls="none", marker=mark, ms=5, mfc="white", mec="black",
                               label=kind.replace("_", " ")))
