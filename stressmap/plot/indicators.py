@@ -94,7 +94,7 @@ def _round_rings(top: float) -> list[float]:
     raw = top / 4.0
     exp = math.floor(math.log10(raw))
     step = next(m * 10.0**exp for m in (1.0, 2.0, 5.0, 10.0) if m * 10.0**exp >= raw)
-    return [round(v, 10) for v in np.arange(step, top + step * 1e-9, step)]
+    return [round(float(v), 10) for v in np.arange(step, top + step * 1e-9, step)]
 
 
 def rose_png(observed_deg, predicted_deg, weight=None, *, bin_deg=10.0, title=None,
