@@ -12,8 +12,9 @@ $(STAMP): pyproject.toml
 	$(BIN)/python -m pip install --quiet -e '.[test]'
 	touch $(STAMP)
 
+# `make serve PORT=8080` (or PORT in the environment) chooses the port; default 8000.
 serve: $(STAMP)
-	$(BIN)/stressmap serve --demo
+	$(BIN)/stressmap serve --demo $(if $(PORT),--port $(PORT))
 
 test: $(STAMP)
 	$(BIN)/python -m pytest stressmap tests
