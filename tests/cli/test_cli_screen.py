@@ -98,7 +98,8 @@ def test_csv_file_carries_the_caution(capsys, tmp_path):
     assert list(frame["strike_deg"]) == [40.0]
     assert "pore_pressure_margin_mpa" in frame.columns
     printed = capsys.readouterr().out
-    assert printed.startswith("CAUTION:") and printed.rstrip().endswith("licensed practice.")
+    assert printed.startswith("CAUTION:") and printed.rstrip().endswith(CAUTION)
+    assert printed.count("licensed") == 2  # once at the top, once at the end: no repeat after it
 
 
 def test_sampling_reports_percentiles_and_probability(capsys):
