@@ -35,6 +35,7 @@ from stressmap.constants import CAUTION, EARTH_RADIUS_KM
 
 __all__ = [
     "shmax_map", "shmax_figure", "regime_probability_map", "regime_probability_figure",
+    "ensemble_regime_png",
     "MapWindow", "map_window", "frame_axes", "draw_scale_bar", "draw_north_arrow",
     "draw_outline", "caption_text", "figure_png",
     "BOUNDARY_STYLES", "REGIME_TICKS", "INDICATOR_MARKS", "PROBABILITY_CMAP", "REGIME_PANELS", "nice_scale_km", "outline_segments",
@@ -674,3 +675,26 @@ def regime_probability_map(lon, lat, probabilities, outline=None, **kwargs) -> b
     """
     fig = regime_probability_figure(lon, lat, probabilities, outline, **kwargs)
     return figure_png(fig)
+
+
+def ensemble_regime_png(ds, outline=None, *, title=None, caption=None) -> bytes:
+    """PNG of the regime probabilities of an ensemble Dataset (points or a lat/lon grid).
+
+    ``ds`` holds ``prob_normal``, ``prob_strike_slip`` and ``prob_reverse`` over ``point`` or
+    (``lat``, ``lon``), as :func:`stressmap.analyses.ensemble.ensemble_grid` and
+    :func:`~stressmap.analyses.ensemble.ensemble_points` return it.
+    """
+    if "point" in ds.dims:
+        lon = np.asarray(ds["lon"].values, float)
+        lat = np.asarray(ds["lat"].values, float)
+        probs = np.column_stack([np.asarray(ds[v].values, float) for _, v in REGIME_PANELS])
+    else:
+        lon2, lat2 = np.meshgrid(np.asarray(ds["lon"].values, float),
+                                 np.asarray(ds["lat"].values, float))
+        lon, lat = lon2.ravel(), lat2.ravel()
+        probs = np.column_stack([np.asarray(ds[v].transpose("lat", "lon").values, float).ravel()
+                                 for _, v in REGIME_PANELS])
+    members = ds.attrs.get("members", "")
+    return regime_probability_map(
+        lon, lat, probs, outline, caption=caption,
+        title=title or f"Regime probability over {members} ensemble members".replace("  ", " "))
