@@ -89,14 +89,17 @@ def mohr_figure(result):
     pp, mu, coh = s["pp_mpa"], s["friction"], s["cohesion_mpa"]
     principal = np.sort(np.linalg.eigvalsh(result.stress_ned))[::-1] - pp   # s1' >= s2' >= s3'
     s1, s2, s3 = principal
-    fig = _figure(8.0, 5.2)
+    x_max = s1 * 1.08 + 1.0
+    y_max = max((s1 - s3) / 2 * 1.25, coh + 1.0)
+    # equal scales on both axes: size the figure to the data so the page is not half empty
+    x_span = x_max - min(0.0, s3 - 1.0)
+    fig = _figure(8.0, float(np.clip(5.6 * y_max / x_span + 2.4, 3.6, 7.0)))
     ax = fig.add_subplot()
     for (a, b), style in (((s3, s1), dict(lw=1.8, color="0.1")),
                           ((s2, s1), dict(lw=1.0, color="0.35")),
                           ((s3, s2), dict(lw=1.0, color="0.35"))):
         ax.add_patch(Circle(((a + b) / 2, 0.0), (b - a) / 2, fill=False, gid="mohr-circle",
                             **style))
-    x_max = s1 * 1.08 + 1.0
     x = np.linspace(0.0, x_max, 50)
     ax.plot(x, coh + mu * x, color="#b2182b", lw=1.4, ls="--", gid="failure-envelope",
             label=f"Coulomb envelope, friction {mu:g}, cohesion {coh:g} MPa")
@@ -110,7 +113,7 @@ def mohr_figure(result):
                         label="planes")
         fig.colorbar(sc, ax=ax, shrink=0.6, label="pore-pressure margin to failure (MPa)")
     ax.set_xlim(min(0.0, s3 - 1.0), x_max)
-    ax.set_ylim(0.0, max((s1 - s3) / 2 * 1.25, coh + 1.0))
+    ax.set_ylim(0.0, y_max)
     ax.set_aspect("equal", adjustable="box")
     ax.set_xlabel("effective normal stress \u03c3\u2099 \u2212 Pp (MPa, compression positive)")
     ax.set_ylabel("shear stress \u03c4 (MPa)")
