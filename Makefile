@@ -9,7 +9,9 @@ STAMP := $(VENV)/.installed
 $(STAMP): pyproject.toml
 	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
 	$(BIN)/python -m pip install --quiet --upgrade pip
-	$(BIN)/python -m pip install --quiet -e '.[test]'
+	# setuptools announces how it wires an editable install (api/ installs as stressmap_api)
+	# as a warning; it is information only, so the install stays quiet.
+	PYTHONWARNINGS="ignore:Editable installation" $(BIN)/python -m pip install --quiet -e '.[test]'
 	touch $(STAMP)
 
 # `make serve PORT=8080` (or PORT in the environment) chooses the port; default 8000.

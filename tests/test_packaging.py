@@ -42,3 +42,13 @@ def test_licence_is_an_spdx_expression_without_licence_classifiers():
     assert not any(c.startswith("License ::") for c in project.get("classifiers", []))
     build = PYPROJECT["build-system"]["requires"]
     assert any(r.replace(" ", "").startswith("setuptools>=77") for r in build)  # PEP 639 support
+
+
+def test_make_installs_quietly():
+    """`make test`/`make serve` bootstrap .venv with an editable install, for which setuptools
+    always emits an informational "Editable installation." warning (its meta-path finder for
+    api/ -> stressmap_api); the Makefile filters exactly that message and nothing else."""
+    makefile = (REPO / "Makefile").read_text(encoding="utf-8")
+    (line,) = [ln for ln in makefile.splitlines() if "pip install" in ln and "-e" in ln]
+    assert "--quiet" in line
+    assert 'PYTHONWARNINGS="ignore:Editable installation"' in line
