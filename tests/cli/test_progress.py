@@ -46,11 +46,15 @@ def test_terminal_bar_shows_the_step_without_a_stray_separator():
 
 def test_build_command_logs_each_step_once(tmp_path):
     """End to end: `stressmap build` with stderr to a file (as in CI)."""
+    import json
     from pathlib import Path
 
     import stressmap
 
-    demo = Path(stressmap.__file__).parent / "data" / "demo_plate.json"
+    doc = json.loads((Path(stressmap.__file__).parent / "data" / "demo_plate.json").read_text())
+    doc["mesh"] = {"edge_km": 250.0}  # coarse: the steps are the point, not the mesh
+    demo = tmp_path / "demo.json"
+    demo.write_text(json.dumps(doc))
     err = tmp_path / "err.log"
     with open(err, "w") as fh:
         subprocess.run([sys.executable, "-c", "import sys; from stressmap.cli import main; "
