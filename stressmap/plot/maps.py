@@ -262,12 +262,16 @@ def draw_north_arrow(ax, window: MapWindow, *, at=(0.93, 0.83)) -> None:
     w = window
     x = w.x0 + at[0] * (w.x1 - w.x0)
     y = w.y0 + at[1] * (w.y1 - w.y0)
+    from matplotlib.patheffects import withStroke
+
     length = 0.09 * (w.y1 - w.y0)
-    ax.annotate("", xy=(x, y + length), xytext=(x, y), zorder=9, gid="north-arrow",
-                arrowprops=dict(arrowstyle="-|>,head_width=0.35,head_length=0.7",
-                                color="black", lw=1.6, shrinkA=0, shrinkB=0))
+    halo = [withStroke(linewidth=4.0, foreground="white")]  # readable over dense ticks
+    arrow = ax.annotate("", xy=(x, y + length), xytext=(x, y), zorder=9, gid="north-arrow",
+                        arrowprops=dict(arrowstyle="-|>,head_width=0.35,head_length=0.7",
+                                        color="black", lw=1.6, shrinkA=0, shrinkB=0))
+    arrow.arrow_patch.set_path_effects(halo)
     ax.text(x, y + length * 1.08, "N", ha="center", va="bottom", fontsize=9,
-            fontweight="bold", zorder=9, gid="north-label")
+            fontweight="bold", zorder=9, gid="north-label", path_effects=halo)
 
 
 def draw_outline(ax, segs, window: MapWindow) -> list[str]:
