@@ -679,14 +679,24 @@
     if (!state.source) return;
     const req = tickRequest();
     const members = Math.round(Number($('ens-members').value));
+    const low = Number($('ens-low').value), high = Number($('ens-high').value);
     if (!req || !(members >= 10 && members <= 10000)) {
       setStatus('Zoom to the plate and give 10 to 10000 members', true);
       return;
     }
+    if (!(low >= 0 && high > low)) {
+      setStatus('The weight range needs 0 <= lowest < highest', true);
+      return;
+    }
+    const distributions = {};
+    for (const g of state.groups) {
+      distributions[g] = {distribution: 'uniform', low: low * state.weights[g],
+        high: Math.max(high * state.weights[g], low * state.weights[g] + 1e-6)};
+    }
     const id = await withBusy('Computing the ensemble', async () => {
       const job = await api(state.source.base + '/ensembles', {json: {
         region: {bbox: req.bbox}, spacing_km: Number((req.spacing * 1.5).toPrecision(3)),
-        members: members, seed: 1}});
+        members: members, seed: 1, distributions: distributions}});
       for (let i = 0; i < POLL_LIMIT; i += 1) {
         const j = await api('/jobs/' + job.id);
         if (j.status === 'done') return job.ensemble_id || job.id;

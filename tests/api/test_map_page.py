@@ -260,6 +260,11 @@ def test_ensemble_needs_the_token_which_stays_in_the_tab(page, server):
     nodes = sum(1 for f in page.evaluate("() => stressmapPage.state.ensemble.features")
                 if f["properties"]["inside"] and f["properties"]["shmax_std_deg"] is not None)
     assert nodes > 10 and fans == 2 * nodes
+    stds = [f["properties"]["shmax_std_deg"]
+            for f in page.evaluate("() => stressmapPage.state.ensemble.features")
+            if f["properties"]["inside"] and f["properties"]["shmax_std_deg"] is not None]
+    assert np.mean(stds) > 1.0  # weights drawn from 0.5-1.5 x each group: a real spread
+    assert "mean 1-sigma SHmax spread" in page.locator("#ens-info").inner_text()
     page.locator("#layer-spread").uncheck()
     assert not page.evaluate("() => stressmapPage.map.hasLayer(stressmapPage.layers.spread)")
 
