@@ -749,10 +749,15 @@
       fig.textContent = '';
       [['Mohr diagram of the site', figureUrls[0]], ['Stress polygon of the site', figureUrls[1]]]
         .forEach(([alt, url]) => {
+          const link = document.createElement('a');
+          link.href = url;
+          link.target = '_blank';
+          link.title = alt + ' (full size)';
           const img = document.createElement('img');
           img.alt = alt;
           img.src = url;
-          fig.appendChild(img);
+          link.appendChild(img);
+          fig.appendChild(link);
         });
     });
   });
