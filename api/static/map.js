@@ -771,6 +771,10 @@
     });
   }
   $('token').addEventListener('input', (ev) => { state.token = ev.target.value.trim(); });
+  // where reads need the token too, nothing could load before it was typed: try again
+  $('token').addEventListener('change', () => {
+    if (!state.source) withBusy('Loading models', loadSources);
+  });
   $('source-select').addEventListener('change', (ev) => {
     const src = state.sources.find((s) => s.kind + ':' + s.id === ev.target.value);
     if (src) withBusy('Loading ' + src.name, () => selectSource(src));
