@@ -20,6 +20,7 @@ import json
 import numpy as np
 import pytest
 from browser_support import REPO, DemoServer, ensure_chromium, ensure_node_modules, launch_chromium
+from stressmap_api.blueprints.mappage import CIVIDIS_32
 
 from stressmap import CAUTION
 
@@ -80,7 +81,9 @@ def page(browser, server, request, tmp_path):
     tab.problems = []
     tab.on("console", lambda msg: msg.type == "error" and tab.problems.append(msg.text))
     tab.on("pageerror", lambda exc: tab.problems.append(f"page error: {exc}"))
-    tab.on("requestfailed", lambda req: tab.problems.append(f"request failed: {req.url}"))
+    # a request the page cancels itself (a newer view replaced it) is not a failure
+    tab.on("requestfailed", lambda req: req.failure != "net::ERR_ABORTED" and
+           tab.problems.append(f"request failed: {req.url} ({req.failure})"))
     failed_before = request.session.testsfailed
     tab.goto(server.base + "/map")
     tab.wait_for_selector("body[data-first-draw=done]", timeout=30_000)
@@ -126,6 +129,14 @@ def test_first_draw_ticks_outline_caution_and_no_console_errors(page, server, re
     got = np.array(drawn)
     np.testing.assert_allclose(got[:, :2], exp[:, :2], atol=1e-6)
     assert _axial_diff(got[:, 2], exp[:, 2]).max() < 0.05
+    # each tick's colour is the cividis colour of its regime index (0..3 over the table)
+    colours = page.evaluate("() => stressmapPage.layers.ticks.getLayers()"
+                            ".filter((l, i) => i % 2 === 1).map(l => l.options.color)")
+    index = np.array([f["properties"]["regime_index"] for f in expected])
+    table = np.array(CIVIDIS_32)
+    nearest = np.floor(np.clip(index / 3.0, 0, 1) * 31 + 0.5).astype(int)  # as JS Math.round
+    assert colours == list(table[nearest])
+    assert len(set(colours)) > 5
 
     # every boundary kind of the demo outline is drawn and named in the legend
     boundary = server.get_json(f"/api/v1/models/{server.model_id}/boundary")
@@ -330,8 +341,6 @@ def test_page_routes_headers_and_settings(app, client):
 
 def test_colour_table_is_matplotlib_cividis():
     import matplotlib
-
-    from stressmap_api.blueprints.mappage import CIVIDIS_32
 
     cmap = matplotlib.colormaps["cividis"]
     ref = np.array([cmap(i / 31)[:3] for i in range(32)]) * 255
