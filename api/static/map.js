@@ -619,6 +619,7 @@
       sel.appendChild(o);
     }
     $('layer-spread').disabled = !state.ensemble;
+    if (!state.ensemble) $('layer-spread').checked = false;
   }
 
   async function showEnsemble(id) {
