@@ -15,7 +15,8 @@ $(STAMP): pyproject.toml
 	touch $(STAMP)
 
 $(NODE_STAMP): package.json package-lock.json
-	npm ci --no-audit --no-fund --loglevel=error
+	@if command -v npm >/dev/null 2>&1; then npm ci --no-audit --no-fund --loglevel=error; \
+	else echo "note: npm not found; the service runs, but its map page needs Node.js and npm (then run make again)"; fi
 
 serve: $(STAMP) $(NODE_STAMP)
 	$(BIN)/stressmap serve --demo
