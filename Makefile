@@ -8,11 +8,11 @@ NODE_STAMP := node_modules/.package-lock.json
 
 .PHONY: serve test clean-venv bench
 
+# setuptools announces how it wires the editable install (api/ installs as stressmap_api) as a
+# warning; it is information only, so that one message is filtered and the install stays quiet.
 $(STAMP): pyproject.toml
 	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
 	$(BIN)/python -m pip install --quiet --upgrade pip
-	# setuptools announces how it wires an editable install (api/ installs as stressmap_api)
-	# as a warning; it is information only, so the install stays quiet.
 	PYTHONWARNINGS="ignore:Editable installation" $(BIN)/python -m pip install --quiet -e '.[test]'
 	touch $(STAMP)
 
