@@ -38,6 +38,7 @@ from stressmap.errors import InputError, problem
 from stressmap.formats import export
 from stressmap.formats.hdf5lock import NETCDF_LOCK
 from stressmap.model import plate_outline
+from stressmap.plot.maps import ensemble_regime_png
 
 __all__ = ["ENSEMBLE_FILE", "bp", "run_calibration"]
 
@@ -172,7 +173,11 @@ def _load_result(path: Path):
     return ds
 
 
-def render_ensemble(path: Path, fmt: str, meta: dict, model, props):
+#: PNG pictures of an ensemble: the SHmax spread map, or the regime-probability maps.
+ENSEMBLE_PICTURES = ("spread", "regime")
+
+
+def render_ensemble(path: Path, fmt: str, meta: dict, model, props, picture: str = "spread"):
     """Payload of a stored ensemble in ``fmt`` (runs on the compute pool)."""
 
     if fmt == "netcdf":
@@ -184,7 +189,8 @@ def render_ensemble(path: Path, fmt: str, meta: dict, model, props):
         caption = (f"Model {meta['model_id']} - {picture_text(meta.get('model_name'), 80)} - "
                    f"built {meta.get('build_time')}; {extra['members']} members, "
                    f"seed {extra['seed']}")
-        return ensemble_png(ds, plate_outline(model), caption=caption)
+        draw = ensemble_regime_png if picture == "regime" else ensemble_png
+        return draw(ds, plate_outline(model), caption=caption)
     flat = flatten_percentiles(ds)
     doc_meta = {**meta, **extra}
     if "point" in flat.dims:
@@ -197,6 +203,7 @@ def get_ensemble(model_id: str, ensemble_id: str):
     check_id(model_id)
     check_id(ensemble_id, "ensemble")
     fmt = requests.choice(request.args.get("format"), ("geojson", "netcdf", "png"), "format")
+    picture = requests.choice(request.args.get("picture"), ENSEMBLE_PICTURES, "picture")
     store = get_store()
     job = store.job(ensemble_id)
     result = job.get("result") or {}
@@ -219,5 +226,7 @@ def get_ensemble(model_id: str, ensemble_id: str):
     props = json.loads(props_path.read_text(encoding="utf-8")) if props_path.is_file() else None
     model = store.load(model_id) if fmt == "png" else None
     meta = output_meta(store.meta(model_id))
-    payload = run_limited(render_ensemble, path, fmt, meta, model, props)
-    return respond(payload, fmt, stem=f"stressmap-{model_id[:8]}-ensemble")
+    payload = run_limited(render_ensemble, path, fmt, meta, model, props, picture)
+    stem = f"stressmap-{model_id[:8]}-ensemble" + ("-regime" if fmt == "png"
+                                                   and picture == "regime" else "")
+    return respond(payload, fmt, stem=stem)
