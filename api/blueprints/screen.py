@@ -11,7 +11,7 @@ from __future__ import annotations
 from flask import Blueprint, current_app, request
 from stressmap_api import requests
 from stressmap_api.limits import run_limited
-from stressmap_api.render import respond
+from stressmap_api.render import picture_text, respond
 from stressmap_api.store import check_id, get_store
 
 from stressmap.analyses import sitescreen
@@ -30,6 +30,8 @@ MAX_PLANE_SAMPLES = 5_000_000
 
 def _run(req, model, model_info, fmt, picture):
 
+    if fmt == "png" and model_info:  # a stored name drawn into a picture: bounded plain text
+        model_info = dict(model_info, name=picture_text(model_info.get("name"), 80))
     result = sitescreen.screen(req, model, model_info)
     if fmt == "json":
         return "json", sitescreen.result_json(result)

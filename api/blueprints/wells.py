@@ -11,7 +11,7 @@ from __future__ import annotations
 from flask import Blueprint, request
 from stressmap_api import requests
 from stressmap_api.limits import run_limited
-from stressmap_api.render import respond
+from stressmap_api.render import picture_text, respond
 from stressmap_api.store import check_id, get_store
 
 from stressmap.analyses import wells
@@ -48,6 +48,8 @@ def _model(body: dict):
 
 
 def _run(analysis, req, model, info, fmt):
+    if fmt == "png" and info:  # a stored name drawn into a picture: bounded plain text
+        info = dict(info, name=picture_text(info.get("name"), 80))
     result = ANALYSES[analysis](req, model, info)
     if fmt == "csv":
         return csv_table(result)
