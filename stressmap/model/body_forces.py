@@ -1,4 +1,5 @@
-"""Distributed loads of a plate model: oceanic ages at the nodes and ridge push as a body force.
+"""Distributed loads of a plate model: oceanic ages at the nodes, ridge push as a body force and
+the GPE load group (body forces from topography, :mod:`stressmap.physics.gpe`).
 
 Grids are never opened here: they arrive as arrays (:class:`stressmap.geo.raster.Raster` or
 anything :func:`~stressmap.geo.raster.as_raster` takes) in the ``grids`` mapping that
@@ -19,8 +20,10 @@ from stressmap.errors import ModelValidationError, problem
 from stressmap.fem import loads as _loads
 from stressmap.geo.raster import as_raster, sample_raster
 from stressmap.physics import forces
+from stressmap.physics import gpe as _gpe
 
-__all__ = ["GRID_ROLES", "find_grid", "sample_grid_at_nodes", "node_ages_myr", "ridge_body_forces"]
+__all__ = ["GRID_ROLES", "find_grid", "sample_grid_at_nodes", "node_ages_myr", "oceanic_facets",
+           "ridge_body_forces", "gpe_field", "gpe_body_forces"]
 
 #: Grid roles a document can name, with the field naming each (the reference string).
 GRID_ROLES = {"age": "ridge_push.age_grid", "elevation": "gpe.elevation_grid",
@@ -175,3 +178,88 @@ def ridge_body_forces(plate, mesh, sheet, xyz_unit, groups, grids=None):
         if np.any(f):
             out[g] = _loads.body_force_loads(sheet.xyz, mesh.triangles, f)
     return out
+
+
+def _gpe_params(gpe: Mapping) -> dict:
+    keys = ("isostasy", "crust_density_kg_m3", "mantle_density_kg_m3", "water_density_kg_m3",
+            "reference_crust_km", "compensation_depth_km", "ocean_model")
+    return {k: gpe[k] for k in keys if k in gpe}
+
+
+def _gpe_columns(plate, mesh):
+    """Active facets (m,) and oceanic-by-age nodes (n,) of the GPE load.
+
+    ``ridge_push.mode`` 'gpe': every facet carries GPE and the nodes of oceanic provinces take the
+    cooling-model column (with no province declared, every node when no elevation grid is given).
+    Other modes: ridge push is carried by the ridge loads, so oceanic provinces carry no GPE
+    gradient (their facets are inactive) and every active node takes its column from elevation.
+    """
+    declared = np.array([p.lithosphere == "oceanic" for p in plate.provinces] + [False])
+    facet_oceanic = declared[mesh.element_province]
+    oceanic = np.zeros(mesh.n_nodes, dtype=bool)
+    if plate.ridge_push.get("mode") == "gpe":
+        active = np.ones(mesh.n_triangles, dtype=bool)
+        if declared[:-1].any():
+            oceanic[mesh.triangles[facet_oceanic].reshape(-1)] = True
+        elif "elevation_grid" not in plate.gpe:
+            oceanic[:] = True
+    else:
+        active = ~facet_oceanic
+    return active, oceanic
+
+
+def gpe_field(plate, mesh, xyz_unit, area, grids=None):
+    """Nodal GPE (n,) N/m relative to the reference column (NaN off the GPE region) and the
+    active facets (m,) bool. See :mod:`stressmap.physics.gpe` for the columns."""
+    gpe = plate.gpe
+    active, oceanic = _gpe_columns(plate, mesh)
+    used = np.zeros(mesh.n_nodes, dtype=bool)
+    used[mesh.triangles[active].reshape(-1)] = True
+    land = used & ~oceanic
+    lon, lat = mesh.lonlat[:, 0], mesh.lonlat[:, 1]
+    smooth = float(gpe.get("smooth_km", plate.mesh.get("edge_km", 0.0)))
+    elevation = crust = age = None
+    if land.any():
+        if "elevation_grid" not in gpe:
+            raise ModelValidationError(
+                "the GPE load needs an elevation grid",
+                [problem("continental columns take their GPE from elevation: give "
+                         "gpe.elevation_grid (or declare the plate's provinces oceanic with "
+                         "ridge_push.mode 'gpe')", field="gpe.elevation_grid")])
+        grid = find_grid(grids, "elevation", gpe["elevation_grid"])
+        elevation = sample_grid_at_nodes(grid, "elevation", lon, lat, need=land, smooth_km=smooth)
+        if gpe.get("isostasy") == "crust":
+            grid = find_grid(grids, "crust_thickness", gpe.get("crust_grid"))
+            crust = sample_grid_at_nodes(grid, "crust_thickness", lon, lat, need=land,
+                                         smooth_km=smooth)
+    if oceanic.any():
+        age, _ = node_ages_myr(plate, mesh, xyz_unit, area, grids, need=oceanic)
+        bad = oceanic & ~np.isfinite(age)
+        if bad.any():
+            raise ModelValidationError(
+                "oceanic columns without an age",
+                [problem(f"{int(bad.sum())} oceanic node(s) have no lithosphere age; give "
+                         "ridge_push.age_source a source that covers the oceanic provinces",
+                         field="ridge_push.age_source")])
+    u = np.full(mesh.n_nodes, np.nan)
+    sel = land | oceanic
+    u[sel] = gpe_columns_at(elevation, crust, age, oceanic, sel, _gpe_params(gpe))
+    return u, active
+
+
+def gpe_columns_at(elevation, crust, age, oceanic, sel, params) -> np.ndarray:
+    """GPE of the selected nodes from whatever inputs exist (None: not needed there)."""
+    pick = (lambda a: None if a is None else np.asarray(a)[sel])
+    return _gpe.column_gpe_n_per_m(pick(elevation), pick(crust), pick(age), oceanic[sel], params)
+
+
+def gpe_body_forces(plate, mesh, sheet, xyz_unit, groups, grids=None):
+    """The GPE load group: nodal forces (G, n, 3) (nonzero only in the GPE group) and the nodal
+    GPE (n,) N/m; ``(zeros, None)`` when the document loads no GPE."""
+    out = np.zeros((len(groups), mesh.n_nodes, 3))
+    if plate.gpe is None:
+        return out, None
+    u, active = gpe_field(plate, mesh, xyz_unit, sheet.area, grids)
+    g = groups.index(plate.gpe["group"])
+    out[g] = _loads.gpe_loads(sheet.xyz, mesh.triangles, np.nan_to_num(u), active)
+    return out, u

@@ -71,6 +71,8 @@ def _segment_loads(plate, mesh, groups):
             continue
         if seg.kind == "ridge" and distributed and seg.properties.get("force_n_per_m") is None:
             continue  # ridge push enters as a body force through the oceanic lithosphere
+        if seg.kind == "ridge" and plate.ridge_push.get("mode") == "gpe":
+            continue  # ridge push is the GPE of the oceanic columns (the GPE group)
         try:
             value = float(forces.segment_force_n_per_m(seg.kind, seg.properties))
         except InputError as exc:
@@ -89,11 +91,18 @@ def _segment_loads(plate, mesh, groups):
 
 
 def _load_groups(plate):
-    """Groups that carry a load, in order of first appearance."""
+    """Groups that carry a load, in order of first appearance; the GPE group last.
+
+    With ``ridge_push.mode`` 'gpe' the ridge segments carry no load of their own (their push is
+    in the GPE group), so ridge push is never counted twice.
+    """
+    unloaded = ("free", "fixed", "ridge") if plate.ridge_push.get("mode") == "gpe" else ("free", "fixed")
     out = []
     for s in plate.segments:
-        if s.kind not in ("free", "fixed") and s.group not in out:
+        if s.kind not in unloaded and s.group not in out:
             out.append(s.group)
+    if plate.gpe is not None and plate.gpe["group"] not in out:
+        out.append(plate.gpe["group"])
     return out
 
 
@@ -134,6 +143,7 @@ class LoadCases:
     torque_before: np.ndarray  # (G, 3) N m
     torque_after: np.ndarray   # (G, 3) N m
     closure: str               # 'torque_balance', 'fixed_edges' or 'none'
+    node_fields: Mapping = field(default_factory=dict)  # e.g. gpe_n_per_m (n,): the loads' inputs
 
 
 def validate(state: BuildState) -> BuildState:
@@ -175,8 +185,9 @@ def factorise(state: BuildState) -> BuildState:
     return replace(state, fixed_nodes=fixed_nodes, factor=factor)
 
 
-def _driving_loads(state: BuildState) -> np.ndarray:
-    """Edge line forces and distributed body forces of every group (G, n, 3), N."""
+def _driving_loads(state: BuildState):
+    """Edge line forces and distributed body forces of every group (G, n, 3), N, and the nodal
+    fields they came from (the GPE, N/m)."""
     plate, m, groups = state.plate, state.mesh, list(state.groups)
     normal, shear, edge_group = _segment_loads(plate, m, groups)
     driving = np.zeros((len(groups), m.n_nodes, 3))
@@ -187,7 +198,10 @@ def _driving_loads(state: BuildState) -> np.ndarray:
                                                 normal[on], shear[on])
     xyz_unit = np.asarray(m.xyz, dtype=float)
     driving += _body.ridge_body_forces(plate, m, state.sheet, xyz_unit, groups, state.grids)
-    return driving
+    gpe_forces, gpe_nodal = _body.gpe_body_forces(plate, m, state.sheet, xyz_unit, groups,
+                                                  state.grids)
+    node_fields = {} if gpe_nodal is None else {"gpe_n_per_m": gpe_nodal}
+    return driving + gpe_forces, node_fields
 
 
 def _closure(state: BuildState, driving: np.ndarray):
@@ -216,13 +230,14 @@ def _closure(state: BuildState, driving: np.ndarray):
 
 def loads(state: BuildState) -> BuildState:
     """Unit load cases: the driving loads of each group plus its own share of basal drag."""
-    driving = _driving_loads(state)
+    driving, node_fields = _driving_loads(state)
     closure_used, omega, drag = _closure(state, driving)
     total = driving + drag
     cases = LoadCases(driving=driving, total=total,
                       rhs=_loads.to_dofs(total, state.sheet.frames).T, omega=omega,
                       torque_before=_loads.net_torque(state.xyz_m, driving),
-                      torque_after=_loads.net_torque(state.xyz_m, total), closure=closure_used)
+                      torque_after=_loads.net_torque(state.xyz_m, total), closure=closure_used,
+                      node_fields=node_fields)
     return replace(state, load_cases=cases)
 
 
@@ -252,7 +267,7 @@ def _fields_dataset(state: BuildState, build_time: str):
     plate, m, lc = state.plate, state.mesh, state.load_cases
     ring_lonlat = np.asarray(plate.ring_lonlat, dtype=float)
     node, seg = ("group", "node", "component"), ("segment",)
-    return xr.Dataset(
+    ds = xr.Dataset(
         {
             "unit_stress_mpa": (node, state.unit_stress, {
                 "long_name": "tectonic stress of each load group at weight 1 (compression positive)",
@@ -297,6 +312,11 @@ def _fields_dataset(state: BuildState, build_time: str):
             "comment": CAUTION,
         },
     )
+    if "gpe_n_per_m" in lc.node_fields:
+        ds["gpe_n_per_m"] = (("node",), lc.node_fields["gpe_n_per_m"], {
+            "long_name": "gravitational potential energy of the column relative to the reference "
+                         "column (NaN where no GPE load)", "units": "N m-1"})
+    return ds
 
 
 def _rotation_report(xyz_m, w) -> dict:
@@ -335,6 +355,7 @@ def _summary(state: BuildState, build_time: str) -> dict:
                  "channel_km": float(plate.drag["channel_km"])},
         "sheet": {k: float(v) for k, v in plate.sheet.items()},
         "ridge_push": {k: v for k, v in plate.ridge_push.items()},
+        **({"gpe": dict(plate.gpe)} if plate.gpe is not None else {}),
         "timings": {},
         "caution": CAUTION,
     }

@@ -63,7 +63,8 @@ DUPLICATE_TOLERANCE_KM = 1e-3
 #: Largest mesh the document may ask for (estimated nodes).
 MAX_MESH_NODES = 3_000_000
 
-_TOP_FIELDS = ("name", "description", "boundary", "provinces", "ridge_push", "drag", "sheet", "mesh")
+_TOP_FIELDS = ("name", "description", "boundary", "provinces", "ridge_push", "gpe", "drag", "sheet",
+               "mesh")
 
 #: Kind-specific parameters: (name, low, high, low_inclusive) for numbers; the low/high bounds
 #: are physical plausibility limits (common practice), not model limits.
@@ -149,6 +150,9 @@ class PlateModel:
     provinces : tuple of Province
     ridge_push, drag, sheet, mesh : dict
         Document tables with defaults filled.
+    gpe : dict or None
+        The ``gpe`` table with defaults filled when the document loads GPE (a ``gpe`` table or
+        ``ridge_push.mode`` 'gpe'), else None.
     arc_segment : ndarray (n,) int64
         Segment (position in ``segments``) of the arc from ring vertex i to i + 1.
     centre_xyz : ndarray (3,)
@@ -170,6 +174,7 @@ class PlateModel:
     arc_segment: np.ndarray = field(repr=False)
     centre_xyz: np.ndarray = field(repr=False)
     area_km2: float = 0.0
+    gpe: dict | None = None
 
     @property
     def groups(self) -> list[str]:
@@ -375,9 +380,16 @@ def _check_segment(i: int, feat, probs: _Problems, ridge_mode: str | None):
         _choice(props["sense"], _SENSES, f"{pbase}.sense", probs, "transform sense")
     given = {k for k, v in props.items() if v is not None}
     if kind == "ridge":
-        if ridge_mode == "distributed_ridge_distance" and "half_rate_mm_yr" not in given:
+        if str(ridge_mode).startswith("gpe") and has_force:
+            probs.add("a ridge's force_n_per_m would count ridge push twice when ridge_push.mode "
+                      "is 'gpe' (the GPE of the oceanic columns carries it); remove it or use mode "
+                      "'edge'", f"{pbase}.force_n_per_m")
+        if str(ridge_mode).endswith("_ridge_distance") and "half_rate_mm_yr" not in given:
+            mode = str(ridge_mode).split("_", 1)[0]
             probs.add("missing parameter: ridges need 'half_rate_mm_yr' when ridge_push.mode is "
-                      "'distributed' with ages from distance to the ridge", f"{pbase}.half_rate_mm_yr")
+                      f"'{mode}' with ages from distance to the ridge", f"{pbase}.half_rate_mm_yr")
+        elif ridge_mode == "gpe":
+            pass  # ages come from provinces or a grid
         elif not has_force and not given & {"age_myr", "half_rate_mm_yr"}:
             probs.add("missing parameter: a ridge needs 'age_myr' (age of the plate's lithosphere "
                       "driving ridge push) or 'half_rate_mm_yr', or an explicit 'force_n_per_m'",
@@ -680,6 +692,39 @@ def _refinement(value, where: str, probs: _Problems):
 # --------------------------------------------------------------------------------------------
 
 
+def _gpe_table(document, ridge_push, probs: _Problems, num, choice, text) -> dict | None:
+    """The ``gpe`` table (defaults from defaults.toml ``[gpe]``), or None when GPE is off."""
+    if "gpe" not in document and ridge_push.get("mode") != "gpe":
+        return None
+    defaults = {k: v for k, v in load_defaults()["gpe"].items() if k != "gravity_m_s2"}
+    gpe = _table(document, "gpe", defaults, {
+        "group": text,
+        "isostasy": choice(("airy", "crust")),
+        "elevation_grid": text, "elevation_variable": text, "elevation_units": text,
+        "crust_grid": text, "crust_variable": text, "crust_units": text,
+        "smooth_km": num(0.0, 2000.0, low_inclusive=True),
+        "crust_density_kg_m3": num(0.0, 5000.0),
+        "mantle_density_kg_m3": num(0.0, 5000.0),
+        "water_density_kg_m3": num(0.0, 5000.0, low_inclusive=True),
+        "reference_crust_km": num(0.0, 100.0),
+        "compensation_depth_km": num(0.0, 1000.0),
+        "ocean_model": choice(("half_space", "plate")),
+    }, probs)
+    if isinstance(gpe.get("group"), str):
+        gpe["group"] = gpe["group"].strip()
+    if gpe.get("isostasy") == "crust" and "crust_grid" not in gpe:
+        probs.add("gpe.isostasy 'crust' needs 'crust_grid' (crustal thickness, km)", "gpe.crust_grid")
+    try:
+        rho = [float(gpe[k]) for k in ("water_density_kg_m3", "crust_density_kg_m3",
+                                       "mantle_density_kg_m3")]
+        if not rho[0] < rho[1] < rho[2]:
+            probs.add("densities must satisfy water < crust < mantle, got "
+                      f"{rho[0]:g} / {rho[1]:g} / {rho[2]:g} kg/m3", "gpe.crust_density_kg_m3")
+    except (TypeError, ValueError):
+        pass  # already reported by the table check
+    return gpe
+
+
 def parse_plate(document) -> PlateModel:
     """Validate a plate model document and build the :class:`PlateModel`.
 
@@ -747,18 +792,21 @@ def parse_plate(document) -> PlateModel:
         return value
 
     ridge_push = _table(document, "ridge_push", defaults["ridge_push"], {
-        "mode": choice(("edge", "distributed")),
+        "mode": choice(("edge", "distributed", "gpe")),
         "age_source": choice(("provinces", "grid", "ridge_distance")),
         "age_grid": text,
         "age_variable": text,
     }, probs)
-    if ridge_push.get("mode") == "distributed":
+    if ridge_push.get("mode") in ("distributed", "gpe"):
         src = ridge_push.setdefault("age_source", "grid" if "age_grid" in ridge_push else "ridge_distance")
         if src == "grid" and "age_grid" not in ridge_push:
-            probs.add("ridge_push.age_source 'grid' needs 'age_grid' (path of a netCDF age grid)",
+            probs.add("ridge_push.age_source 'grid' needs 'age_grid' (a netCDF or GeoTIFF age grid: "
+                      "a file for the CLI, an uploaded grid id for the service)",
                       "ridge_push.age_grid")
-    ridge_mode = ("distributed_ridge_distance" if ridge_push.get("mode") == "distributed"
-                  and ridge_push.get("age_source") == "ridge_distance" else ridge_push.get("mode"))
+    ridge_mode = ridge_push.get("mode")
+    if ridge_mode in ("distributed", "gpe") and ridge_push.get("age_source") == "ridge_distance":
+        ridge_mode = f"{ridge_mode}_ridge_distance"
+    gpe = _gpe_table(document, ridge_push, probs, num, choice, text)
 
     drag = _table(document, "drag", defaults["drag"], {
         "closure": choice(("torque_balance", "none")),
@@ -873,13 +921,17 @@ def parse_plate(document) -> PlateModel:
     norm["boundary"] = {"type": "FeatureCollection", "features": features_out}
     if provinces_out is not None:
         norm["provinces"] = provinces_out
-    norm.update({"ridge_push": ridge_push, "drag": drag, "sheet": sheet, "mesh": mesh})
+    norm["ridge_push"] = ridge_push
+    if gpe is not None:
+        norm["gpe"] = gpe
+    norm.update({"drag": drag, "sheet": sheet, "mesh": mesh})
     ring_xyz = sphere.lonlat_to_xyz(ring[:, 0], ring[:, 1])
     return PlateModel(
         name=name.strip(), document=norm, ring_lonlat=_frozen(ring), ring_xyz=_frozen(ring_xyz),
         segments=tuple(segments), provinces=provinces, ridge_push=dict(ridge_push),
         drag=dict(drag), sheet=dict(sheet), mesh=dict(mesh), arc_segment=_frozen(arc_segment),
-        centre_xyz=_frozen(centre), area_km2=float(area_km2))
+        centre_xyz=_frozen(centre), area_km2=float(area_km2),
+        gpe=None if gpe is None else dict(gpe))
 
 
 def _estimate_nodes(area_km2: float, mesh: dict) -> float:
