@@ -113,8 +113,22 @@ def as_raster(grid, name: str = "") -> Raster:
             lat = c
     if lon[-1] - lon[0] > 360.0 + 1e-9:
         raise ValueError("grid longitudes span more than 360 degrees")
+    lon, values = _contiguous(lon, values)
     return Raster(np.ascontiguousarray(lon), np.ascontiguousarray(lat),
                   np.ascontiguousarray(values), name or "", units)
+
+
+def _contiguous(lon, values):
+    """Roll a grid whose columns wrap around (e.g. 340..359.5 and 0..20 stored as 0..360) so
+    its longitudes run without a gap (-20..20)."""
+    d = np.diff(lon)
+    k = int(np.argmax(d))
+    step = float(np.median(d))
+    if d[k] <= 1.5 * step or abs((lon[0] + 360.0) - lon[-1] - step) > 0.5 * step:
+        return lon, values
+    order = np.r_[np.arange(k + 1, lon.size), np.arange(k + 1)]
+    new = np.r_[lon[k + 1:] - 360.0, lon[: k + 1]]
+    return new, values[:, order]
 
 
 def _box_average(raster: Raster, smooth_km: float) -> np.ndarray:
