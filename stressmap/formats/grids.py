@@ -31,7 +31,8 @@ from stressmap.errors import InputError, problem
 from stressmap.geo.raster import Raster, as_raster
 
 __all__ = ["ROLES", "MAX_GRID_CELLS", "sniff", "raster_from_bytes", "raster_from_dataset",
-           "netcdf_raster", "geotiff_raster", "subset_indices", "subset_raster"]
+           "netcdf_raster", "geotiff_raster", "subset_indices", "subset_raster",
+           "raster_netcdf_bytes"]
 
 #: Largest grid (cells, after subsetting) a reader accepts: a global 2-arc-minute grid.
 MAX_GRID_CELLS = 10800 * 5400
@@ -56,7 +57,7 @@ def _fail(message: str, field: str) -> InputError:
     return InputError(message, [problem(message, field=field)])
 
 
-def sniff(data: bytes) -> str:
+def sniff(data: bytes, field: str = "grid") -> str:
     """``'netcdf'`` or ``'geotiff'`` from the first bytes; InputError otherwise.
 
     Examples
@@ -69,7 +70,7 @@ def sniff(data: bytes) -> str:
         return "netcdf"
     if head[:4] in (b"II*\x00", b"MM\x00*", b"II+\x00", b"MM\x00+"):
         return "geotiff"
-    raise _fail("not a netCDF or GeoTIFF file (unrecognised first bytes)", "grid")
+    raise _fail("not a netCDF or GeoTIFF file (unrecognised first bytes)", field)
 
 
 def _convert_units(values, units: str, role: str, field: str):
@@ -285,7 +286,18 @@ def raster_from_bytes(data: bytes, role: str, variable: str | None = None, units
     """A Raster from netCDF or GeoTIFF bytes (format from the first bytes)."""
     if role not in ROLES:
         raise _fail(f"unknown grid role {role!r}; expected one of {', '.join(ROLES)}", "role")
-    kind = sniff(data)
+    kind = sniff(data, role)
     if kind == "netcdf":
         return netcdf_raster(data, role, variable, bbox, max_cells)
     return geotiff_raster(data, role, units, bbox, max_cells)
+
+
+def raster_netcdf_bytes(raster: Raster, attrs: dict | None = None) -> bytes:
+    """A Raster as CF netCDF bytes (variable named by its role; float32 values)."""
+    ds = xr.Dataset(
+        {raster.name or "value": (("lat", "lon"), np.asarray(raster.values, dtype="float32"),
+                                  {"units": raster.units})},
+        coords={"lat": ("lat", raster.lat, {"standard_name": "latitude", "units": "degrees_north"}),
+                "lon": ("lon", raster.lon, {"standard_name": "longitude", "units": "degrees_east"})},
+        attrs={"Conventions": "CF-1.8", **(attrs or {})})
+    return bytes(ds.to_netcdf())
