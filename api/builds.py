@@ -110,7 +110,8 @@ def build_and_store(data_dir: str, model_id: str, document: dict, max_mesh_nodes
         progress(0.95 * float(fraction), message)
 
     grids = load_document_grids(document, data_dir)  # uploaded grids named by id, as arrays
-    model = build_model(document, progress=build_progress, grids=grids)
+    extra = {"grids": grids} if grids else {}  # plain documents call build_model as before
+    model = build_model(document, progress=build_progress, **extra)
     nodes = mesh_nodes(model)
     if max_mesh_nodes and nodes > max_mesh_nodes:
         raise InputError("the model's mesh is too large",
