@@ -131,10 +131,22 @@ def _contiguous(lon, values):
     return new, values[:, order]
 
 
+def _box_mean_axis(a: np.ndarray, size: int, axis: int, wrap: bool) -> np.ndarray:
+    """Moving sum over ``size`` cells along one axis (edges repeated, or wrapped), same shape."""
+    if size <= 1:
+        return a
+    lo, hi = size // 2, size - 1 - size // 2
+    pad = [(0, 0), (0, 0)]
+    pad[axis] = (lo + 1, hi)
+    c = np.cumsum(np.pad(a, pad, mode="wrap" if wrap else "edge"), axis=axis)
+    n = a.shape[axis]
+    upper = np.take(c, np.arange(size, size + n), axis=axis)
+    lower = np.take(c, np.arange(0, n), axis=axis)
+    return upper - lower
+
+
 def _box_average(raster: Raster, smooth_km: float) -> np.ndarray:
     """Values averaged over a moving box of about ``smooth_km`` (NaN cells excluded)."""
-    from scipy.ndimage import uniform_filter  # scipy is a core dependency; loaded on use
-
     dlat_km = np.abs(np.diff(raster.lat)).mean() * _KM_PER_DEG
     mid = np.radians(np.clip(np.abs(raster.lat).mean(), 0.0, 80.0))
     dlon_km = np.abs(np.diff(raster.lon)).mean() * _KM_PER_DEG * np.cos(mid)
@@ -142,11 +154,11 @@ def _box_average(raster: Raster, smooth_km: float) -> np.ndarray:
     if size == (1, 1):
         return raster.values
     good = np.isfinite(raster.values)
-    mode = ("nearest", "wrap" if raster.is_global else "nearest")
-    num = uniform_filter(np.where(good, raster.values, 0.0), size=size, mode=mode)
-    den = uniform_filter(good.astype(float), size=size, mode=mode)
-    out = np.where(good, num / np.where(den > 0, den, 1.0), np.nan)
-    return out
+    num, den = np.where(good, raster.values, 0.0), good.astype(float)
+    for axis, wrap in ((0, False), (1, raster.is_global)):
+        num = _box_mean_axis(num, size[axis], axis, wrap)
+        den = _box_mean_axis(den, size[axis], axis, wrap)
+    return np.where(good, num / np.where(den > 0, den, 1.0), np.nan)
 
 
 def sample_raster(grid, lon, lat, smooth_km: float | None = None):

@@ -72,3 +72,26 @@ def test_as_raster_rejects_bad_shapes():
         as_raster(([0.0, 1.0, 0.5], [0.0, 1.0], np.zeros((2, 3))))
     with pytest.raises(ValueError, match="latitudes"):
         as_raster(([0.0, 1.0], [80.0, 95.0], np.zeros((2, 2))))
+
+
+@pytest.mark.parametrize("global_grid", [False, True])
+def test_box_average_matches_scipy_uniform_filter(global_grid):
+    """The NaN-aware box mean equals scipy.ndimage.uniform_filter of values and of the valid
+    mask (edges 'nearest'; columns 'wrap' on a global grid)."""
+    from scipy.ndimage import uniform_filter
+
+    from stressmap.geo.raster import _box_average
+
+    lon = np.arange(0.0, 360.0, 4.5) if global_grid else np.linspace(0.0, 7.9, 80)
+    lat = np.linspace(-2.5, 2.4, 50)
+    values = _grid(lon, lat, seed=3)
+    values[10, 10] = np.nan
+    r = Raster(lon, lat, values)
+    smooth_km = 5 * 0.1 * 111.195 if not global_grid else 5 * 4.5 * 111.195 * np.cos(np.radians(1.2))
+    got = _box_average(r, smooth_km)
+    good = np.isfinite(values)
+    size = (5, 5) if not global_grid else (int(round(smooth_km / (0.1 * 111.195))), 5)
+    mode = ("nearest", "wrap" if global_grid else "nearest")
+    num = uniform_filter(np.where(good, values, 0.0), size=size, mode=mode)
+    den = uniform_filter(good.astype(float), size=size, mode=mode)
+    assert_allclose(got, np.where(good, num / den, np.nan), rtol=1e-10, atol=1e-12)
