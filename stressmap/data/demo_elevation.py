@@ -57,8 +57,8 @@ def demo_elevation(spacing_deg: float = 0.1) -> Raster:
     >>> r.units, r.values.shape, float(r.values.max()) > 2900, float(r.values.min()) < -3900
     ('m', (81, 109), True, True)
     """
-    lon = np.arange(-40.0, 14.0 + 1e-9, spacing_deg)
-    lat = np.arange(-40.0, 0.0 + 1e-9, spacing_deg)
+    lon = np.round(np.arange(-40.0, 14.0 + 1e-9, spacing_deg), 9)
+    lat = np.round(np.arange(-40.0, 0.0 + 1e-9, spacing_deg), 9)
     glon, glat = np.meshgrid(lon, lat)
     doc = _demo_document()
     basin = next(f for f in doc["provinces"]["features"]
