@@ -181,9 +181,10 @@ def _region_boundary(triangles, active):
     tri = triangles[idx]
     edges = np.concatenate([tri[:, [0, 1]], tri[:, [1, 2]], tri[:, [2, 0]]])
     owner = np.tile(idx, 3)
-    key = np.sort(edges, axis=1)
-    _, inverse, counts = np.unique(key, axis=0, return_inverse=True, return_counts=True)
-    once = counts[inverse.reshape(-1)] == 1
+    lo, hi = edges.min(axis=1), edges.max(axis=1)
+    key = lo * (int(triangles.max(initial=0)) + 1) + hi  # one int64 per undirected edge
+    _, inverse, counts = np.unique(key, return_inverse=True, return_counts=True)
+    once = counts[inverse] == 1
     return edges[once], owner[once]
 
 
