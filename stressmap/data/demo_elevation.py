@@ -16,6 +16,9 @@ Write the grid (CF netCDF) and a copy of the demo plate document with a ``gpe`` 
 it (the elevation grid path is relative to the document)::
 
     .venv/bin/python -m stressmap.data.demo_elevation OUTDIR
+
+``--pictures`` also builds that model and draws SHmax and regime without and with the GPE group
+(``shmax_without_gpe.png``, ``shmax_with_gpe.png``: the pictures in the README).
 """
 
 from __future__ import annotations
@@ -32,8 +35,11 @@ import xarray as xr
 
 from stressmap.constants import CAUTION
 from stressmap.geo.raster import Raster
+from stressmap.model import build_model, plate_outline, predict_grid
+from stressmap.plot.maps import shmax_map
 
-__all__ = ["demo_elevation", "demo_gpe_document", "write_demo_gpe", "PLATEAU", "MARGIN"]
+__all__ = ["demo_elevation", "demo_gpe_document", "write_demo_gpe", "write_gpe_pictures",
+           "PLATEAU", "MARGIN"]
 
 #: Plateau: centre lon, lat (degrees), radius (km), edge width (km), height (m) over the shield.
 PLATEAU = (-26.0, -13.0, 500.0, 150.0, 2600.0)
@@ -115,11 +121,38 @@ def write_demo_gpe(out_dir) -> tuple[Path, Path]:
     return grid_path, doc_path
 
 
+def write_gpe_pictures(out_dir, spacing_km: float = 150.0) -> list[Path]:
+    """Build the demo with topography and draw SHmax and regime without and with the GPE group."""
+    out = Path(out_dir)
+    doc = demo_gpe_document("elevation")
+    model = build_model(doc, grids={"elevation": demo_elevation()})
+    paths = []
+    for name, weight, label in (("shmax_without_gpe.png", 0.0, "without"),
+                                ("shmax_with_gpe.png", 1.0, "with")):
+        ds = predict_grid(model, bbox=(-38.0, -38.0, 11.0, -2.0), spacing_km=spacing_km,
+                          weights={"gpe": weight})
+        glon, glat = np.meshgrid(ds["lon"].values, ds["lat"].values)
+        png = shmax_map(glon.ravel(), glat.ravel(),
+                        ds["shmax_azimuth_deg"].transpose("lat", "lon").values.ravel(),
+                        ds["regime_index"].transpose("lat", "lon").values.ravel(),
+                        plate_outline(model),
+                        title=f"SHmax and regime {label} the GPE group (FICTIONAL demo plate)",
+                        caption=f"{model.summary['name']} - weights gpe={weight:g}, others 1")
+        (out / name).write_bytes(png)
+        paths.append(out / name)
+    return paths
+
+
 def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("out_dir", help="folder to write demo_elevation.nc and demo_plate_gpe.json")
+    parser.add_argument("--pictures", action="store_true",
+                        help="also draw SHmax and regime without and with the GPE group (PNG)")
     args = parser.parse_args(argv)
-    for path in write_demo_gpe(args.out_dir):
+    paths = list(write_demo_gpe(args.out_dir))
+    if args.pictures:
+        paths += write_gpe_pictures(args.out_dir)
+    for path in paths:
         print(f"wrote {path}")
     return 0
 
