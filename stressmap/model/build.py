@@ -10,6 +10,12 @@ field of each group at weight 1.0 (the forces the document and defaults specify)
 combination is then a weighted sum -- :func:`predict_points` and :func:`predict_grid` never solve
 again -- and stays in torque balance because every unit field carries its own drag.
 
+The chain is a table of named stages (:data:`STAGES`: validate, mesh, assemble, factorise, loads,
+solve, recover, collect), each a function from one :class:`BuildState` to the next; the driver
+:func:`run_stages` calls the progress callback before each and records its seconds, which the
+summary reports under ``timings`` (the CLI progress bar and benchmarks/solver.py read them).
+Grids (age, elevation, crustal thickness) arrive as arrays in ``grids``: the core opens no files.
+
 Stresses are tectonic (depth-averaged deviatoric membrane force divided by the sheet thickness),
 in MPa, **compression positive**, with components (s_ee, s_nn, s_en) in the local
 (east, north) frame.
