@@ -129,3 +129,20 @@ def test_a_grid_of_another_role_is_refused(svc, elevation_nc):
     resp = client.post(f"{API}/models", json=doc)
     assert resp.status_code == 422
     assert "holds elevation, not age" in resp.json["errors"][0]["message"]
+
+
+def test_boundary_forces_say_where_ridge_push_went_with_gpe_ridge_push():
+    from stressmap_api.boundary import boundary_forces
+
+    from stressmap.model import build_model
+
+    doc = demo_gpe_document("x")
+    doc.pop("gpe")
+    doc.pop("provinces")  # an all-oceanic plate: no elevation grid needed
+    doc["ridge_push"] = {"mode": "gpe", "age_source": "ridge_distance"}
+    doc["mesh"] = {"edge_km": 250.0}
+    model = build_model(doc)
+    ridges = [f["properties"] for f in boundary_forces(model)["features"]
+              if f["properties"]["kind"] == "ridge"]
+    assert ridges and all(p["normal_force_n_per_m"] == 0.0 and "GPE" in p["applied_as"]
+                          for p in ridges)
