@@ -74,7 +74,9 @@ def load_document(path: str, params: str | None = None) -> dict:
 def _cmd_build(args) -> int:
 
     document = load_document(args.model, args.params)
-    grids = read_document_grids(document, base_dir=Path(args.model).parent)
+    # grid paths are relative to the working directory, else to the file that names them
+    base = Path(args.params if args.params else args.model).parent
+    grids = read_document_grids(document, base_dir=base)
     bar, update = progress_bar("build")
     try:
         model = build_model(document, progress=update, grids=grids)
