@@ -109,3 +109,26 @@ def test_gpe_table_is_validated():
         model.build_model(doc)
     fields = {p["field"] for p in err.value.problems}
     assert {"gpe.isostasy", "gpe.crust_density_kg_m3", "gpe.extra"} <= fields
+
+
+def test_crust_isostasy_with_the_airy_crust_reproduces_the_airy_build(elevation):
+    """isostasy 'crust' given the crustal thickness Airy implies (from the same elevation) is the
+    Airy column (stressmap.physics.gpe), so the two builds give the same GPE unit field. Land only
+    (elevation >= 0), where the Airy crust is linear in elevation, so resampling (linear) commutes
+    with it."""
+    from stressmap.geo.raster import Raster
+    from stressmap.physics.gpe import airy_moho_m
+
+    e = np.maximum(elevation.values, 0.0)
+    elevation = Raster(elevation.lon, elevation.lat, e, "elevation", "m")
+    top = np.where(e > 0, -e, np.maximum(-e, 0.0))
+    crust_km = (airy_moho_m(e) - top) / 1e3
+    crust = Raster(elevation.lon, elevation.lat, crust_km, "crust_thickness", "km")
+    doc = demo_gpe_document("elev")
+    doc["mesh"] = {"edge_km": 200.0}
+    airy = model.build_model(doc, grids={"elev": elevation})
+    doc["gpe"].update({"isostasy": "crust", "crust_grid": "moho"})
+    both = model.build_model(doc, grids={"elev": elevation, "moho": crust})
+    a = airy.fields["unit_stress_mpa"].sel(group="gpe").values
+    b = both.fields["unit_stress_mpa"].sel(group="gpe").values
+    assert_allclose(b, a, rtol=0, atol=1e-6 * np.abs(a).max())
