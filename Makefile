@@ -3,6 +3,8 @@ PYTHON ?= python3
 VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
+# npm ci writes node_modules/.package-lock.json: the map page's pinned web library is installed.
+NODE_STAMP := node_modules/.package-lock.json
 
 .PHONY: serve test clean-venv bench
 
@@ -12,13 +14,17 @@ $(STAMP): pyproject.toml
 	$(BIN)/python -m pip install --quiet -e '.[test]'
 	touch $(STAMP)
 
-serve: $(STAMP)
+$(NODE_STAMP): package.json package-lock.json
+	@if command -v npm >/dev/null 2>&1; then npm ci --no-audit --no-fund --loglevel=error; \
+	else echo "note: npm not found; the service runs, but its map page needs Node.js and npm (then run make again)"; fi
+
+serve: $(STAMP) $(NODE_STAMP)
 	$(BIN)/stressmap serve --demo
 
-test: $(STAMP)
+test: $(STAMP) $(NODE_STAMP)
 	$(BIN)/python -m pytest stressmap tests
 
-bench: $(STAMP)
+bench: $(STAMP) $(NODE_STAMP)
 	for f in benchmarks/*.py; do $(BIN)/python $$f || exit 1; done
 
 clean-venv:
