@@ -6,9 +6,11 @@ rebinding) cannot reach the service through the visitor's browser. ``stressmap s
 address it listens on.
 
 Media type: a request with a body (POST) must say ``Content-Type: application/json`` (or a
-``+json`` type such as ``application/geo+json``); anything else is refused with 415 before the
-body is read. Browsers send cross-site form posts only as ``text/plain``, form or multipart
-types without a preflight, so a page elsewhere cannot create models or start work here blind.
+``+json`` type such as ``application/geo+json``), or one of the types its view declares with
+:func:`accepts` (file uploads); anything else is refused with 415 before the body is read.
+Browsers send cross-site posts without a preflight only as ``text/plain``, form or multipart
+types, so a page elsewhere cannot create models or start work here blind (a view that accepts
+multipart uploads should require the token).
 """
 
 from __future__ import annotations
@@ -16,7 +18,20 @@ from __future__ import annotations
 from flask import current_app, request
 from stressmap_api.problems import ApiProblem
 
-__all__ = ["host_allowed", "init_app"]
+__all__ = ["accepts", "host_allowed", "init_app"]
+
+
+def accepts(*mimetypes: str):
+    """Decorator for a view whose body is not JSON (a file upload): the media types it takes.
+
+    Example: ``@accepts("application/x-netcdf", "application/octet-stream")``.
+    """
+
+    def mark(view):
+        view.accepts = tuple(mimetypes)
+        return view
+
+    return mark
 
 
 def host_allowed(host: str, allowed) -> bool:
@@ -60,6 +75,9 @@ def _check_media_type():
     mimetype = request.mimetype or ""
     if mimetype == "application/json" or mimetype.endswith("+json"):
         return
+    view = current_app.view_functions.get(request.endpoint)
+    if mimetype and mimetype in getattr(view, "accepts", ()):
+        return  # a file upload of a type its view declares
     if not request.content_length and not mimetype and request.endpoint is None:
         return  # unknown route: let 404/405 answer
     raise ApiProblem(415, "Unsupported Media Type",

@@ -18,6 +18,7 @@ from dataclasses import dataclass
 import numpy as np
 import shapely
 from shapely.geometry import shape
+from stressmap_api.grids import check_references
 from stressmap_api.problems import ApiProblem
 from stressmap_api.store import document_digest
 
@@ -680,23 +681,19 @@ def _boundary_vertex_count(document) -> int:
     return total
 
 
-def parse_model_document(document, max_mesh_nodes: int) -> dict:
+def parse_model_document(document, max_mesh_nodes: int, data_dir=None) -> dict:
     """Validate a plate model document before its build is accepted.
 
     Returns ``{"name", "digest", "estimated_nodes"}``. Raises
     :class:`~stressmap.errors.ModelValidationError` (every problem of the document) or
-    :class:`~stressmap.errors.InputError` (server paths, too many vertices, a name over
+    :class:`~stressmap.errors.InputError` (a grid that is not an uploaded grid of ``data_dir``,
+    server paths, too many vertices, a name over
     :data:`MAX_NAME_CHARS`, a mesh estimate over ``max_mesh_nodes`` counting refinements,
     degenerate sheet or drag values).
     """
-    ridge_push = document.get("ridge_push") if isinstance(document, dict) else None
-    if isinstance(ridge_push, dict) and ("age_grid" in ridge_push
-                                         or ridge_push.get("age_source") == "grid"):
-        # A path in an upload would make the service open any file (or URL) it can reach.
-        raise InputError("ridge_push.age_grid names a file on the server; uploads cannot",
-                         [problem("the service reads no server files named in a document; give "
-                                  "ages with age_source 'provinces' or 'ridge_distance'",
-                                  field="ridge_push.age_grid")])
+    # Grids are uploaded resources named by id; a path or URL would make the service open any
+    # file it can reach, so it is refused (stressmap_api.grids.check_references).
+    check_references(document, data_dir)
     name = document.get("name") if isinstance(document, dict) else None
     if isinstance(name, str) and len(name) > MAX_NAME_CHARS:
         raise InputError("the model's name is too long",

@@ -16,6 +16,7 @@ import math
 
 import numpy as np
 import shapely
+from stressmap_api.grids import load_document_grids
 from stressmap_api.store import Store
 
 from stressmap.analyses.ensemble import ensemble_grid, ensemble_points
@@ -58,7 +59,9 @@ def build_and_store(data_dir: str, model_id: str, document: dict, max_mesh_nodes
     def build_progress(fraction, message=""):
         progress(0.95 * float(fraction), message)
 
-    model = build_model(document, progress=build_progress)
+    grids = load_document_grids(document, data_dir)  # uploaded grids named by id, as arrays
+    extra = {"grids": grids} if grids else {}  # plain documents call build_model as before
+    model = build_model(document, progress=build_progress, **extra)
     nodes = mesh_nodes(model)
     if max_mesh_nodes and nodes > max_mesh_nodes:
         raise InputError("the model's mesh is too large",

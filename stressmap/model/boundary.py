@@ -28,14 +28,17 @@ SIGN_CONVENTION = ("normal force positive pushes into the plate; shear along the
                    "(interior on the left); vectors at anchor_lon/anchor_lat")
 
 
-def _applied(seg, distributed: bool) -> tuple[float, str]:
-    """Unweighted line force (N/m) of one segment and how it is applied."""
+def _applied(seg, mode: str) -> tuple[float, str]:
+    """Unweighted line force (N/m) of one segment and how it is applied (``mode``: the
+    document's ``ridge_push.mode``)."""
     if seg.kind == "fixed":
         return 0.0, "displacement held at zero"
     if seg.kind == "free":
         return 0.0, "none"
-    if seg.kind == "ridge" and distributed and seg.properties.get("force_n_per_m") is None:
+    if seg.kind == "ridge" and mode == "distributed" and seg.properties.get("force_n_per_m") is None:
         return 0.0, "body force through the oceanic lithosphere"
+    if seg.kind == "ridge" and mode == "gpe":
+        return 0.0, "GPE of the oceanic columns (the GPE load group)"
     return float(forces.segment_force_n_per_m(seg.kind, seg.properties)), "edge"
 
 
@@ -74,14 +77,14 @@ def segment_forces(model, weights=None) -> list[dict]:
     mid /= np.linalg.norm(mid, axis=1, keepdims=True)
     east, north = sphere.local_frame(mid)
     arc_segment = np.asarray(plate.arc_segment)
-    distributed = plate.ridge_push.get("mode") == "distributed"
+    mode = plate.ridge_push.get("mode")
     ring_ll = np.asarray(plate.ring_lonlat, dtype=float)
     out = []
     for seg in plate.segments:  # a handful of segments
         on = _segment_arcs(arc_segment, seg)
         cum = np.cumsum(length[on])
         pick = on[int(np.searchsorted(cum, 0.5 * cum[-1]))]
-        value, applied = _applied(seg, distributed)
+        value, applied = _applied(seg, mode)
         weight = 0.0 if seg.kind in ("free", "fixed") else float(w.get(seg.group, 0.0))
         sense = SENSES[seg.properties.get("sense", "dextral")] if seg.kind == "transform" else 0
         shear = sense * value * weight
