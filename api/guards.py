@@ -80,10 +80,13 @@ def _check_media_type():
         return  # a file upload of a type its view declares
     if not request.content_length and not mimetype and request.endpoint is None:
         return  # unknown route: let 404/405 answer
+    taken = getattr(view, "accepts", ())
+    wanted = (f"one of {', '.join(taken)}" if taken
+              else "JSON with 'Content-Type: application/json'")
     raise ApiProblem(415, "Unsupported Media Type",
-                     f"send the body as JSON with 'Content-Type: application/json' (got "
+                     f"send the body as {wanted} (got "
                      f"{(request.content_type or 'none')[:80]!r})",
-                     headers={"Accept-Post": "application/json"})
+                     headers={"Accept-Post": ", ".join(taken) or "application/json"})
 
 
 def init_app(app) -> None:
