@@ -17,10 +17,13 @@ Geometry rules (stated in the README):
 
 * boundary arcs between consecutive vertices are great circles;
 * segment ends join within 1 km into one closed ring, in any order and either direction;
-* on a sphere a ring bounds two regions: the plate is the *smaller* one; the ring is stored
-  counter-clockwise seen from outside the sphere (plate interior on the left);
+* on a sphere a ring bounds two regions: the plate is the *smaller* one, unless ``region`` is
+  ``"left"``: then it is the region on the left walking boundary feature 0 from its first to its
+  last position (how plates larger than a hemisphere are given; network plates always say so);
+  the ring is stored counter-clockwise seen from outside the sphere (plate interior on the left);
 * the plate must lie within :data:`MAX_EXTENT_DEG` degrees of arc of its centre (area
-  centroid), which keeps every projection used by the mesher and the checks well conditioned.
+  centroid): any plate short of nearly the whole sphere (the mesher's stereographic plane about
+  the centre stays finite).
 """
 
 from __future__ import annotations
@@ -33,7 +36,7 @@ import numpy as np
 
 from stressmap.constants import EARTH_RADIUS_KM
 from stressmap.errors import ModelValidationError, problem
-from stressmap.geo import sphere
+from stressmap.geo import arcs, sphere
 from stressmap.io.plate_files import load_plate_files as _load
 from stressmap.physics.forces import load_defaults
 
@@ -41,6 +44,7 @@ __all__ = [
     "KINDS",
     "LITHOSPHERES",
     "MAX_EXTENT_DEG",
+    "REGIONS",
     "JOIN_TOLERANCE_KM",
     "MAX_MESH_NODES",
     "Segment",
@@ -55,7 +59,9 @@ __all__ = [
 KINDS = ("ridge", "subduction", "overriding", "collision", "transform", "free", "fixed")
 LITHOSPHERES = ("oceanic", "continental")
 #: Every point of the ring must lie within this angle (degrees of arc) of the plate centre.
-MAX_EXTENT_DEG = 80.0
+MAX_EXTENT_DEG = 165.0
+#: Which of the two regions a ring bounds is the plate (``region`` field).
+REGIONS = ("smaller", "left")
 #: Segment ends closer than this join into the ring.
 JOIN_TOLERANCE_KM = 1.0
 #: Vertices closer than this (km) within one segment are duplicates.
@@ -63,7 +69,8 @@ DUPLICATE_TOLERANCE_KM = 1e-3
 #: Largest mesh the document may ask for (estimated nodes).
 MAX_MESH_NODES = 3_000_000
 
-_TOP_FIELDS = ("name", "description", "boundary", "provinces", "ridge_push", "drag", "sheet", "mesh")
+_TOP_FIELDS = ("name", "description", "region", "boundary", "provinces", "ridge_push", "drag",
+               "sheet", "mesh")
 
 #: Kind-specific parameters: (name, low, high, low_inclusive) for numbers; the low/high bounds
 #: are physical plausibility limits (common practice), not model limits.
@@ -538,6 +545,26 @@ def _self_intersections(ring_xyz, arc_segment, centre, probs: _Problems) -> None
 # provinces, tables
 
 
+def _self_crossings_sphere(ring_xyz, arc_segment, probs: _Problems) -> None:
+    """Crossing arcs of a ring too wide for a gnomonic plane, found on the sphere."""
+    a, b = ring_xyz, np.roll(ring_xyz, -1, axis=0)
+    n = len(a)
+    pairs = arcs.near_pairs(a, b, 0.0)
+    i, j = pairs[:, 0], pairs[:, 1]
+    keep = ~((j == i + 1) | ((i == 0) & (j == n - 1)))
+    i, j = i[keep], j[keep]
+    meet, point = arcs.arc_crossings(a[i], b[i], a[j], b[j])
+    seen = set()
+    for a_, b_, p in zip(i[meet].tolist(), j[meet].tolist(), point[meet]):
+        sa, sb = int(arc_segment[a_]), int(arc_segment[b_])
+        if (min(sa, sb), max(sa, sb)) in seen:
+            continue
+        seen.add((min(sa, sb), max(sa, sb)))
+        lon, lat = sphere.xyz_to_lonlat(p)
+        probs.add(f"the boundary crosses itself at {_fmt(float(lon), float(lat))} (segments {sa} "
+                  f"and {sb})", f"boundary.features[{min(sa, sb)}].geometry.coordinates")
+
+
 def _check_provinces(raw, probs: _Problems):
     """Returns (list of (ring (k, 2), props dict), normalised FeatureCollection)."""
     if raw is None:
@@ -730,6 +757,8 @@ def parse_plate(document) -> PlateModel:
     description = document.get("description")
     if description is not None and not isinstance(description, str):
         probs.add(f"description must be a string, got {_describe(description)}", "description")
+    region = document.get("region", "smaller")
+    region = _choice(region, REGIONS, "region", probs, "region")
 
     def num(low=None, high=None, low_inclusive=False, high_inclusive=True):
         def check(value, where):
@@ -814,14 +843,18 @@ def parse_plate(document) -> PlateModel:
             mean = sphere.normalize(ring_xyz.sum(axis=0))
             spread = (np.degrees(np.max(sphere.angle_between(ring_xyz, mean)))
                       if np.any(mean) else 180.0)
+            n0 = len(probs)
             if spread < 89.0:
-                n0 = len(probs)
                 _self_intersections(ring_xyz, arc_segment, mean, probs)
-                if len(probs) > n0:
-                    ring = None
+            else:
+                _self_crossings_sphere(ring_xyz, arc_segment, probs)
+            if len(probs) > n0:
+                ring = None
             if ring is not None:
                 area = sphere.spherical_polygon_area(ring_xyz)
-                if area < 0:
+                if region == "left" and area < 0:  # the larger region, on the left as given
+                    area = 4.0 * np.pi * EARTH_RADIUS_KM**2 + area
+                elif area < 0:
                     order = [(s, not f) for s, f in reversed(order)]
                     ring, arc_segment, bounds = _build_ring(order, seg_coords)
                     ring_xyz = sphere.lonlat_to_xyz(ring[:, 0], ring[:, 1])
@@ -832,12 +865,10 @@ def parse_plate(document) -> PlateModel:
                     probs.add(f"the boundary ring encloses no area ({area_km2:.3g} km^2)",
                               "boundary")
                     ring = None
-                elif extent > MAX_EXTENT_DEG or spread >= 89.0:
-                    extent = max(extent, spread)
+                elif extent > MAX_EXTENT_DEG:
                     probs.add(f"the plate is larger than supported: its ring reaches {extent:.1f} "
                               f"degrees of arc from the plate centre; the limit is "
-                              f"{MAX_EXTENT_DEG:g} degrees (the plate must fit in a cap of that "
-                              "radius, well inside a hemisphere); split the plate", "boundary")
+                              f"{MAX_EXTENT_DEG:g} degrees; split the plate", "boundary")
                     ring = None
             if ring is not None:
                 est_nodes = _estimate_nodes(area_km2, mesh)
@@ -870,6 +901,8 @@ def parse_plate(document) -> PlateModel:
     norm = {"name": name.strip()}
     if description is not None:
         norm["description"] = description
+    if region != "smaller":
+        norm["region"] = region
     norm["boundary"] = {"type": "FeatureCollection", "features": features_out}
     if provinces_out is not None:
         norm["provinces"] = provinces_out
