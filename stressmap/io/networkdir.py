@@ -28,9 +28,11 @@ from stressmap.errors import InputError, ModelValidationError, NotFoundError, St
 from stressmap.io.modeldir import MODEL_FILES, fsync_dir, read_model, write_model
 from stressmap.model.build import build_model
 from stressmap.model.network import check_network, document_key, plate_documents
+from stressmap.model.network_predict import merge_plates
 from stressmap.model.plate import parse_plate
 
-__all__ = ["derive", "build_network", "read_network", "is_network_dir", "load_plates", "NETWORK_FILES"]
+__all__ = ["derive", "build_network", "read_network", "is_network_dir", "load_plates",
+           "read_network_model", "read_any_model", "NETWORK_FILES"]
 
 NETWORK_FILES = ("network.json", "index.json")
 
@@ -202,3 +204,16 @@ def load_plates(directory, names=None) -> dict:
             f"plate {n!r} is not built in {p.name}; run `stressmap network build`", field="plate")
             for n in missing])
     return {n: read_model(p / "plates" / index["plates"][n]["key"]) for n in names}
+
+
+def read_network_model(directory, names=None):
+    """The built plates of a network directory joined into one model (see
+    :func:`stressmap.model.network_predict.merge_plates`)."""
+    index = read_network(directory)
+    return merge_plates(load_plates(directory, names), name=index.get("name") or Path(directory).name)
+
+
+def read_any_model(directory):
+    """A model directory (``stressmap build``) or a network directory (``stressmap network
+    build``) as one model."""
+    return read_network_model(directory) if is_network_dir(directory) else read_model(directory)
