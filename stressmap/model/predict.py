@@ -17,6 +17,7 @@ import numpy as np
 
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
+from stressmap.geo.sphere import local_frame
 from stressmap.geo.tensor import describe
 from stressmap.model.built import _KM_PER_DEG, MAX_GRID_POINTS, BuiltModel
 
@@ -124,14 +125,38 @@ def unit_stress_at(model: BuiltModel, lon, lat):
     unit : (G, P, 3) float64
         (s_ee, s_nn, s_en) in MPa, compression positive, per group at weight 1; NaN outside.
     """
+    lon, lat = _check_lonlat(lon, lat)
     inside, triangle, w = locate(model, lon, lat)
-    _, tri, _, _, _, unit_nodes = _geometry(model)
+    xyz, tri, _, _, _, unit_nodes = _geometry(model)
     g = unit_nodes.shape[0]
     out = np.full((g, inside.size, 3), np.nan)
     if inside.any():
         nodes = tri[triangle[inside]]  # (Pin, 3)
-        out[:, inside] = np.einsum("pj,gpjc->gpc", w[inside], unit_nodes[:, nodes])
+        lo, la = np.radians(lon[inside]), np.radians(lat[inside])
+        q = np.stack([np.cos(la) * np.cos(lo), np.cos(la) * np.sin(lo), np.sin(la)], axis=1)
+        at_q = _to_point_frames(unit_nodes[:, nodes], xyz[nodes], q)
+        out[:, inside] = np.einsum("pj,gpjc->gpc", w[inside], at_q)
     return inside, out
+
+
+def _to_point_frames(s, node_xyz, q):
+    """Node tensors (G, P, 3 nodes, 3 components) in their nodal (east, north) frames, expressed
+    in the (east, north) frame at the points q (P, 3).
+
+    Frames of nearby nodes differ by the convergence of the meridians (up to 180 degrees next
+    to a pole), so the components are turned by the angle between the node's east and the
+    point's east (the node's east projected on the point's tangent plane) before weighting.
+    """
+    qe, qn = local_frame(q)
+    ne, _ = local_frame(node_xyz)  # (P, 3, 3)
+    x = np.einsum("pjk,pk->pj", ne, qe)
+    y = np.einsum("pjk,pk->pj", ne, qn)
+    theta = np.arctan2(y, x)
+    c, sn = np.cos(theta), np.sin(theta)
+    see, snn, sen = s[..., 0], s[..., 1], s[..., 2]
+    return np.stack([c * c * see + sn * sn * snn - 2.0 * c * sn * sen,
+                     sn * sn * see + c * c * snn + 2.0 * c * sn * sen,
+                     c * sn * (see - snn) + (c * c - sn * sn) * sen], axis=-1)
 
 
 def resolve_weights(model: BuiltModel, weights=None) -> np.ndarray:
