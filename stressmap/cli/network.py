@@ -15,11 +15,11 @@ import numpy as np
 
 from stressmap.cli._progress import progress_bar
 from stressmap.errors import InputError, problem
-from stressmap.geo import sphere
+from stressmap.formats.network_geojson import plates_geojson
 from stressmap.io.network_files import load_network_files
 from stressmap.io.networkdir import build_network, derive
 
-__all__ = ["register", "plates_geojson"]
+__all__ = ["register"]
 
 
 def _load(args) -> dict:
@@ -27,31 +27,6 @@ def _load(args) -> dict:
         raise InputError(f"network file not found: {args.network}",
                          [problem("file not found", field="NET")])
     return load_network_files(args.network, args.params)
-
-
-def plates_geojson(net, docs: dict, keys: dict) -> dict:
-    """The plates of a checked network as a GeoJSON FeatureCollection of Polygons.
-
-    Each ring runs counter-clockwise seen from outside the sphere (RFC 7946 right-hand rule),
-    its arcs are great circles and it is not cut at the antimeridian; properties: ``plate``,
-    ``area_km2``, ``neighbours``, ``segments`` (count), ``document_key``.
-    """
-    features = []
-    for face in net.faces:
-        if face.name is None:
-            continue
-        lon, lat = sphere.xyz_to_lonlat(face.ring_xyz)
-        ring = np.round(np.column_stack([lon, lat]), 8)
-        feats = docs[face.name]["boundary"]["features"]
-        features.append({
-            "type": "Feature",
-            "properties": {"plate": face.name, "area_km2": round(face.area_km2, 3),
-                           "neighbours": sorted({f["properties"]["neighbour"] for f in feats
-                                                 if f["properties"]["neighbour"] is not None}),
-                           "segments": len(feats), "document_key": keys[face.name]},
-            "geometry": {"type": "Polygon", "coordinates": [np.vstack([ring, ring[:1]]).tolist()]},
-        })
-    return {"type": "FeatureCollection", "name": net.name, "features": features}
 
 
 def _cmd_check(args) -> int:

@@ -31,7 +31,7 @@ from stressmap.model.network import check_network, document_key, plate_documents
 from stressmap.model.network_predict import merge_plates
 from stressmap.model.plate import parse_plate
 
-__all__ = ["derive", "build_network", "read_network", "is_network_dir", "load_plates",
+__all__ = ["derive", "build_network", "prepare_network", "read_network", "is_network_dir", "load_plates",
            "read_network_model", "read_any_model", "NETWORK_FILES"]
 
 NETWORK_FILES = ("network.json", "index.json")
@@ -147,15 +147,37 @@ def build_network(document: dict, directory, plates=None, workers: int | None = 
         todo = [n for n in wanted if not _present(out, keys[n])]
         reused = [n for n in wanted if n not in todo]
         _build_pool(todo, docs, keys, out, workers, progress)
-        tmp = out / f".network.json.tmp-{uuid.uuid4().hex}"
-        tmp.write_text(json.dumps(document, sort_keys=True), encoding="utf-8")
-        os.replace(tmp, out / "network.json")
+        _write_document(out, document)
         _write_index(out, _index(net, docs, keys, out))
     except OSError as exc:
         raise StorageError(f"could not write the network directory {out.name}: "
                            f"{exc.strerror or exc}") from exc
     return {"built": todo, "reused": reused, "keys": {n: keys[n] for n in wanted},
             "directory": str(out)}
+
+
+def prepare_network(document: dict, directory) -> dict:
+    """Check a network and write its directory without building any plate; returns the index.
+
+    Raises the network's :class:`ModelValidationError` before anything is written.
+    """
+    net, docs, keys = derive(document)
+    out = Path(directory)
+    try:
+        (out / "plates").mkdir(parents=True, exist_ok=True)
+        _write_document(out, document)
+        index = _index(net, docs, keys, out)
+        _write_index(out, index)
+    except OSError as exc:
+        raise StorageError(f"could not write the network directory {out.name}: "
+                           f"{exc.strerror or exc}") from exc
+    return index
+
+
+def _write_document(out: Path, document: dict) -> None:
+    tmp = out / f".network.json.tmp-{uuid.uuid4().hex}"
+    tmp.write_text(json.dumps(document, sort_keys=True), encoding="utf-8")
+    os.replace(tmp, out / "network.json")
 
 
 def _build_pool(todo: list, docs: dict, keys: dict, out: Path, workers, progress) -> None:
