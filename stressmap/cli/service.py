@@ -19,11 +19,12 @@ from stressmap_api.jobs import get_jobs
 from stressmap_api.network_store import get_network_store
 from stressmap_api.store import get_store
 
-from stressmap import CAUTION
+from stressmap import CAUTION, validate
 from stressmap.cli._progress import progress_bar
 from stressmap.errors import InputError, StressmapError, problem
 from stressmap.formats import export
 from stressmap.formats.network_geojson import plates_geojson
+from stressmap.geo.grid import MIN_SPACING_KM
 from stressmap.io.modeldir import write_model
 from stressmap.io.networkdir import build_network, derive, read_network_model
 from stressmap.model import build_model, plate_outline, predict_grid
@@ -71,8 +72,9 @@ def _cmd_serve(args) -> int:
         server_cfg["threads"] = args.threads
     overrides = {}
     if args.workers is not None:
-        if args.workers < 1:
-            raise InputError("--workers must be at least 1", [problem("at least 1", field="--workers")])
+        problems: list = []
+        validate.number(args.workers, "--workers", problems, integer=True, low=1)
+        validate.raise_problems(problems)
         overrides["JOB_WORKERS"] = args.workers
     if args.demo:
         overrides["LOAD_DEMO"] = True
@@ -136,9 +138,9 @@ def _cmd_serve(args) -> int:
 
 def _cmd_demo(args) -> int:
 
-    if not (args.spacing_km > 0 and math.isfinite(args.spacing_km)):
-        raise InputError("--spacing-km must be a positive number",
-                         [problem(f"got {args.spacing_km}", field="--spacing-km")])
+    problems: list = []
+    validate.number(args.spacing_km, "--spacing-km", problems, low=MIN_SPACING_KM)
+    validate.raise_problems(problems)
     out = Path(args.output)
     try:
         out.mkdir(parents=True, exist_ok=True)

@@ -297,12 +297,12 @@ def test_segment_force_uses_properties_then_defaults():
     ("kind", "props", "field", "message"),
     [
         ("ridge", {"age_myr": -3.0}, "properties.age_myr", "must be >= 0"),
-        ("ridge", {"age_myr": "old"}, "properties.age_myr", "finite number"),
+        ("ridge", {"age_myr": "old"}, "properties.age_myr", "must be a number"),
         ("ridge", {"half_rate_mm_yr": 0.0}, "properties.half_rate_mm_yr", "must be > 0"),
         ("ridge", {"cooling_model": "slab"}, "properties.cooling_model", "unknown cooling model"),
         ("subduction", {"pull_fraction": 2.0}, "properties.pull_fraction", "<= 1"),
         ("collision", {"force_n_per_m": -1e12}, "properties.force_n_per_m", "must be >= 0"),
-        ("transform", {"mean_stress_mpa": float("nan")}, "properties.mean_stress_mpa", "finite number"),
+        ("transform", {"mean_stress_mpa": float("nan")}, "properties.mean_stress_mpa", "must be finite"),
         ("trench", {}, "kind", "unknown segment kind"),
     ],
 )
