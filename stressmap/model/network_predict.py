@@ -34,10 +34,11 @@ def merge_plates(models: dict, name: str = "network") -> BuiltModel:
 
     Examples
     --------
-    >>> merge_plates({})
-    Traceback (most recent call last):
-    ...
-    stressmap.errors.InputError: the network has no built plate
+    >>> try:
+    ...     merge_plates({})
+    ... except InputError as err:
+    ...     print(err.message)
+    the network has no built plate
     """
     import xarray as xr
 

@@ -78,8 +78,20 @@ def locate(model: BuiltModel, lon, lat):
     inside : (P,) bool
     triangle : (P,) int64, -1 outside
     weights : (P, 3) float64, barycentric weights of the facet's vertices (NaN outside)
+
+    The answer to the latest query is kept on the model (a network prediction locates the same
+    points twice: for the values and for the plate column); callers must not modify it.
     """
     lon, lat = _check_lonlat(lon, lat)
+    last = model._cache.get("last_locate")
+    if last is not None and np.array_equal(last[0], lon) and np.array_equal(last[1], lat):
+        return last[2]
+    answer = _locate(model, lon, lat)
+    model._cache["last_locate"] = (lon.copy(), lat.copy(), answer)
+    return answer
+
+
+def _locate(model: BuiltModel, lon, lat):
     xyz, tri, inv, tree, reach, _ = _geometry(model)
     lo, la = np.radians(lon), np.radians(lat)
     q = np.stack([np.cos(la) * np.cos(lo), np.cos(la) * np.sin(lo), np.sin(la)], axis=1)
