@@ -604,6 +604,10 @@ def check_network(document) -> Network:
     tol = JUNCTION_TOLERANCE_KM / _R
     end_node, node_xyz, cuts = _junctions(lines, tol)
     edges = _pieces(lines, end_node, node_xyz, cuts)
+    if not edges:
+        probs.append(problem("the lines bound no face: each closes on itself within "
+                             f"{JUNCTION_TOLERANCE_KM:g} km or folds back", field="lines.features"))
+        raise ModelValidationError(_summary(probs), probs)
     n_dangling = _dangling(edges, node_xyz, lines, tol, probs)
     _crossings(edges, probs)
     comps = _clusters(len(node_xyz), np.array([e["nodes"] for e in edges]))

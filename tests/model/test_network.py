@@ -16,6 +16,8 @@ from importlib import resources
 
 import numpy as np
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 from pyproj import Geod
 
@@ -250,3 +252,32 @@ def test_one_line_edit_changes_only_the_two_adjacent_plates():
     keys2 = {n: nw.document_key(d) for n, d in nw.plate_documents(nw.check_network(edited)).items()}
     changed = sorted(n for n in keys if keys[n] != keys2[n])
     assert changed == sorted([props["left"], props["right"]])
+
+
+_json_scalar = st.one_of(st.none(), st.booleans(), st.integers(-10**30, 10**30),
+                         st.floats(allow_nan=True), st.text(max_size=5))
+_lonlat = st.lists(st.sampled_from([0.0, 5.0, 10.0, -5.0, 180.0, -180.0, 90.0, -90.0, 1e-4]),
+                   min_size=2, max_size=2)
+_feature = st.fixed_dictionaries({
+    "type": st.sampled_from(["Feature", "Feature", "feature"]),
+    "properties": st.one_of(_json_scalar, st.fixed_dictionaries({
+        "kind": st.sampled_from(["ridge", "subduction", "free", "transform", "collision", "rift"]),
+        "left": st.one_of(st.none(), st.sampled_from(["A", "B", ""]), st.integers()),
+        "right": st.one_of(st.none(), st.sampled_from(["A", "C"])),
+        "sinks": st.sampled_from(["left", "right", "up"]),
+        "sense": st.sampled_from(["dextral", "sinistral", None]),
+        "age_myr": _json_scalar})),
+    "geometry": st.fixed_dictionaries({
+        "type": st.sampled_from(["LineString", "LineString", "MultiLineString", "Point"]),
+        "coordinates": st.one_of(_json_scalar, st.lists(st.one_of(_lonlat, _json_scalar), max_size=5))}),
+})
+
+
+@settings(max_examples=200, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(features=st.lists(_feature, max_size=5), name=st.one_of(_json_scalar, st.just("n")))
+def test_no_json_value_makes_the_checker_raise_anything_else(features, name):
+    doc = {"name": name, "lines": {"type": "FeatureCollection", "features": features}}
+    try:
+        nw.plate_documents(nw.check_network(doc))
+    except ModelValidationError as err:
+        assert err.problems and all("message" in p for p in err.problems)
