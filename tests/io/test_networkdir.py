@@ -103,3 +103,24 @@ def test_network_files_demo_and_lines_file_without_params(tmp_path):
     path.write_text(json.dumps(poly))
     with pytest.raises(ModelValidationError, match="polygons"):
         load_network_files(path)
+
+
+def test_geopackage_lines_in_a_projected_crs_give_the_same_network(tmp_path):
+    import geopandas as gpd
+    from shapely.geometry import LineString
+
+    from stressmap.model.network import check_network
+
+    feats = regional()["lines"]["features"]
+    frame = gpd.GeoDataFrame([f["properties"] for f in feats],
+                             geometry=[LineString(f["geometry"]["coordinates"]) for f in feats],
+                             crs="EPSG:4326")
+    path = tmp_path / "lines.gpkg"
+    frame.to_crs("EPSG:3857").to_file(path, driver="GPKG")  # read back reprojected to lon/lat
+    doc = load_network_files(path)
+    assert doc["name"] == "lines"
+    a = check_network(doc)
+    b = check_network(regional())
+    assert sorted(a.plates) == sorted(b.plates) == ["A", "B", "C"]
+    np.testing.assert_allclose(sorted(f.area_km2 for f in a.faces), sorted(f.area_km2 for f in b.faces),
+                               rtol=1e-9)
