@@ -177,7 +177,8 @@ def _cmd_compare(args) -> int:
             "build_time": summary.get("model_build_time", "")}
     out = Path(args.output)
     out.mkdir(parents=True, exist_ok=True)
-    cols = _output_columns(table, CONVERT_COLUMNS + COMPARISON_COLUMNS + ["plate"])
+    cols = _output_columns(table, CONVERT_COLUMNS + COMPARISON_COLUMNS
+                           + (["plate"] if "plate" in table else []))
     flat = table.reset_index(drop=True)
     write_indicators(flat, out / "indicators.geojson", columns=cols, meta=meta)
     write_indicators(flat, out / "indicators.csv", columns=cols, meta=meta)
