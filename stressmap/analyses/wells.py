@@ -59,9 +59,8 @@ __all__ = [
     "run_breakout",
 ]
 
-#: Said beside every well result, after the caution.
-WELL_NOTE = ("A screening estimate, not a well design: defer to site-specific studies, local codes "
-             "and licensed practice.")
+#: Said beside every well result, after the caution: only what the caution does not already say.
+WELL_NOTE = "This is not a well design."
 
 _OWN_KEYS = {"units", "rock", "well", "window", "breakout", "profile", "stress_path"}
 _SUB_KEYS = {

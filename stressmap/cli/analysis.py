@@ -22,6 +22,7 @@ from stressmap.formats import export
 from stressmap.io.networkdir import read_any_model
 from stressmap.io.points import read_points
 from stressmap.model import plate_outline
+from stressmap.plot.maps import ensemble_regime_png
 
 __all__ = ["register", "parse_bounds", "parse_vary", "parse_percentiles", "load_config"]
 
@@ -260,11 +261,14 @@ def _cmd_ensemble(args) -> int:
     meta = {"caution": CAUTION, "model_name": model.summary.get("name", ""),
             "build_time": model.summary.get("build_time", ""), "members": args.members,
             "seed": seed, "distributions": json.dumps(distributions, sort_keys=True)}
+    caption = (f"Model {meta['model_name']} built {meta['build_time']}; {args.members} members, "
+               f"seed {seed}")
+    if args.regime_png:
+        Path(args.regime_png).write_bytes(
+            ensemble_regime_png(ds, plate_outline(model), caption=caption))
     if fmt == "nc":
         out.write_bytes(export.netcdf_bytes(ds, meta))
     elif fmt == "png":
-        caption = (f"Model {meta['model_name']} built {meta['build_time']}; {args.members} members, "
-                   f"seed {seed}")
         out.write_bytes(ensemble_png(ds, plate_outline(model), caption=caption))
     else:
         flat = flatten_percentiles(ds)
@@ -274,7 +278,8 @@ def _cmd_ensemble(args) -> int:
     n_in = int(ds["inside"].values.astype(bool).sum())
     where = (f"{ds.sizes['point']} points" if "point" in ds.dims
              else f"a {ds.sizes['lat']} x {ds.sizes['lon']} grid")
-    print(f"ensemble of {args.members} members over {where} ({n_in} inside the plate) -> {out}")
+    print(f"ensemble of {args.members} members over {where} ({n_in} inside the plate) -> {out}"
+          + (f"; regime probability map -> {args.regime_png}" if args.regime_png else ""))
     print(f"note: {CAUTION}")
     return 0
 
@@ -329,6 +334,8 @@ def register(sub) -> None:
     q.add_argument("--members", type=int, required=True, metavar="N", help="ensemble members")
     q.add_argument("-o", "--output", required=True, metavar="OUT",
                    help="output file: .nc (CF netCDF), .geojson or .png")
+    q.add_argument("--regime-png", metavar="FILE",
+                   help="also draw the probability of each faulting regime as a PNG map")
     q.add_argument("--vary", action="append", metavar="GROUP[.PARAM]=KIND:A:B",
                    help="distribution of a group's weight or parameter: uniform:LOW:HIGH, "
                         "log-uniform:LOW:HIGH, normal:MEAN:STD (repeatable)")

@@ -42,7 +42,8 @@ _REPO_SERVER_CONFIG = Path(__file__).resolve().parents[2] / "config" / "server.t
 
 
 def load_server_config(path: str | None = None) -> dict:
-    """waitress settings: defaults < config/server.toml (or ``path`` / STRESSMAP_SERVER_CONFIG)."""
+    """waitress settings: defaults < config/server.toml (or ``path`` / STRESSMAP_SERVER_CONFIG)
+    < the STRESSMAP_PORT environment variable (command-line options win over all of them)."""
     cfg = dict(SERVER_DEFAULTS)
     explicit = path or os.environ.get("STRESSMAP_SERVER_CONFIG")
     file = Path(explicit) if explicit else _REPO_SERVER_CONFIG
@@ -56,6 +57,13 @@ def load_server_config(path: str | None = None) -> dict:
             raise InputError(f"{file.name} is not valid TOML: {exc}",
                              [problem(str(exc), field=str(file))]) from None
         cfg.update(data.get("server", data))
+    port = os.environ.get("STRESSMAP_PORT", "").strip()
+    if port:
+        if not port.isdigit() or int(port) > 65535:
+            raise InputError(f"STRESSMAP_PORT must be a port number 0-65535, got {port!r}",
+                             [problem("expected a whole number from 0 to 65535",
+                                      field="STRESSMAP_PORT")])
+        cfg["port"] = int(port)
     return cfg
 
 
@@ -219,7 +227,8 @@ def register(sub) -> None:
                     "settings come from config/service.toml and STRESSMAP_* environment "
                     "variables; server settings from config/server.toml; options here win.")
     p.add_argument("--host", help="address to listen on (default from config/server.toml: 127.0.0.1)")
-    p.add_argument("--port", type=int, help="port to listen on (default 8000; 0 picks a free port)")
+    p.add_argument("--port", type=int, help="port to listen on (default: STRESSMAP_PORT, else config/server.toml: "
+                        "8000; 0 picks a free port)")
     p.add_argument("--workers", type=int, metavar="N",
                    help="background build workers (processes; default JOB_WORKERS from config)")
     p.add_argument("--threads", type=int, metavar="N", help="request threads of the server")

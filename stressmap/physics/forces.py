@@ -69,7 +69,7 @@ __all__ = [
     "segment_force_n_per_m",
 ]
 
-#: Boundary segment kinds (DESIGN.md) and the sign of their normal force (+ pushes into the plate).
+#: Boundary segment kinds (README, Conventions) and the sign of their normal force (+ pushes into the plate).
 SEGMENT_KINDS = {
     "ridge": 1.0,
     "subduction": -1.0,
@@ -368,7 +368,7 @@ def _prop(properties: Mapping, key: str, default, *, lo=0.0, hi=None, strict_lo=
 def segment_force_n_per_m(kind: str, properties: Mapping | None = None, params=None) -> float:
     """Signed normal line force (N/m) of one boundary segment from its document properties.
 
-    Sign convention (DESIGN.md): positive pushes into the plate, negative pulls outward. For
+    Sign convention (README, Conventions): positive pushes into the plate, negative pulls outward. For
     ``transform`` the result is the shear magnitude (its direction comes from ``sense``, applied
     by the load builder); ``free`` and ``fixed`` give 0 (a fixed edge is a displacement
     constraint, not a force).
