@@ -304,14 +304,25 @@ def predict_grid(model: BuiltModel, bbox, spacing_km, weights=None):
 
 def plate_outline(model: BuiltModel) -> list[dict]:
     """Boundary segments for maps: a list of ``{"kind", "group", "name", "lon", "lat"}`` with
-    lon/lat arrays of the ring vertices of each segment, in ring order."""
+    lon/lat arrays of the ring vertices of each segment, in ring order (each plate's ring on its
+    own for the joined plates of a network)."""
     f = model.fields
     lon = np.asarray(f["ring_lon"].values, float)
     lat = np.asarray(f["ring_lat"].values, float)
     arc = np.asarray(f["arc_segment"].values, dtype=np.int64)
-    kinds = [str(k) for k in f["segment_kind"].values]
-    groups = [str(g) for g in f["segment_group"].values]
-    names = [str(g) for g in f["segment_name"].values]
+    tables = ([str(k) for k in f["segment_kind"].values], [str(g) for g in f["segment_group"].values],
+              [str(g) for g in f["segment_name"].values])
+    if "ring_plate" not in f:
+        return _ring_runs(lon, lat, arc, *tables)
+    which = np.asarray(f["ring_plate"].values)
+    out = []
+    for k in np.unique(which):  # the plates of a network: a dozen or so
+        sel = which == k
+        out += _ring_runs(lon[sel], lat[sel], arc[sel], *tables)
+    return out
+
+
+def _ring_runs(lon, lat, arc, kinds, groups, names) -> list[dict]:
     n = arc.size
     # runs of consecutive arcs of one segment (the ring starts at a segment boundary or inside one)
     change = np.flatnonzero(arc != np.roll(arc, 1))
