@@ -283,14 +283,28 @@ def _junctions(lines: list, tol: float):
     ends = np.concatenate([[x[0], x[-1]] for x in lines])
     end_line = np.repeat(np.arange(n_lines), 2)
     a, b, arc_line, arc_k = _arcs_of(lines)
-    e, arc, _, foot, t = _near_arcs(ends, a, b, tol)
+    e, arc, dist, foot, t = _near_arcs(ends, a, b, tol)
+    n_arcs = np.array([len(x) - 1 for x in lines])
+    # an end is not near the arc it ends (a closed loop finds its start on its first arc)
     own_end = arc_line[arc] == end_line[e]
+    mine = own_end & (arc_k[arc] == np.where(e % 2 == 0, 0, n_arcs[arc_line[arc]] - 1))
+    e, arc, dist, foot, t, own_end = e[~mine], arc[~mine], dist[~mine], foot[~mine], t[~mine], own_end[~mine]
+    # the nearest point of each line to each end: one hit per (end, line)
+    order = np.lexsort((dist, arc_line[arc], e))
+    _, first = np.unique(np.column_stack([e, arc_line[arc]])[order], axis=0, return_index=True)
+    keep = order[first]
+    e, arc, foot, t, own_end = e[keep], arc[keep], foot[keep], t[keep], own_end[keep]
     param = arc_k[arc] + t
-    last = np.array([len(x) - 1 for x in lines])[arc_line[arc]]
+    last = n_arcs[arc_line[arc]]
     # snap to a vertex of the other line when within the tolerance of it
     da = sphere.angle_between(foot, a[arc])
     db = sphere.angle_between(foot, b[arc])
     param = np.where(da <= tol, np.floor(param + 1e-9), np.where(db <= tol, arc_k[arc] + 1.0, param))
+    starts = np.stack([lines[k][0] for k in arc_line[arc]]) if len(arc) else np.zeros((0, 3))
+    stops = np.stack([lines[k][-1] for k in arc_line[arc]]) if len(arc) else np.zeros((0, 3))
+    here = ends[e]  # line ends within the tolerance of each other meet there
+    param = np.where(sphere.angle_between(here, starts) <= tol, 0.0,
+                     np.where(sphere.angle_between(here, stops) <= tol, last.astype(float), param))
     at_end = (param <= 0) | (param >= last)
     # end meets end of a line (its own other end too: a closed loop)
     end_of_other = 2 * arc_line[arc] + (param >= last)

@@ -281,3 +281,24 @@ def test_no_json_value_makes_the_checker_raise_anything_else(features, name):
         nw.plate_documents(nw.check_network(doc))
     except ModelValidationError as err:
         assert err.problems and all("message" in p for p in err.problems)
+
+
+def test_two_junctions_closer_than_twice_the_tolerance_stay_apart():
+    # P and Q 1.5 km apart, joined by a short line whose middle vertex is within 1 km of both:
+    # each spoke's end must join its own junction, not be cut into the short line's middle
+    q = 1.5 / (np.pi * 6371.0 / 180.0)
+    ridge = {"kind": "ridge", "age_myr": 10.0}
+    doc = network(
+        line([[0, 0], [q / 2, 0], [q, 0]], kind="transform", sense="dextral", left="North", right="South"),
+        line([[0, 0], [-10, 10]], left="West", right="North", **ridge),
+        line([[0, 0], [-10, -10]], left="South", right="West", **ridge),
+        line([[q, 0], [10, 10]], left="North", right="East", **ridge),
+        line([[q, 0], [10, -10]], left="East", right="South", **ridge),
+        line([[-10, 10], [10, 10], [10, -10], [-10, -10], [-10, 10]], kind="free"),
+    )
+    net = nw.check_network(doc)
+    assert sorted(net.plates) == ["East", "North", "South", "West"]
+    used = np.unique([n for e in net.edges for n in e["nodes"]])
+    assert len(used) - len(net.edges) + len(net.faces) == 2  # Euler, the outside included
+    docs = nw.plate_documents(net)
+    assert [f["properties"]["kind"] for f in docs["North"]["boundary"]["features"]].count("transform") == 1
