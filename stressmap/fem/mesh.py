@@ -377,7 +377,9 @@ def _interior_points(poly, bxy, size: _Size, base: float):
     rmax = np.sqrt(max(x0 * x0, x1 * x1) + max(y0 * y0, y1 * y1)) / _R
     scale_max = float(sphere.stereographic_scale(rmax, 0.0))
     hmax = size.edge * scale_max
-    lip = 1.05 * (size.max_slope * scale_max**2 + hmax * rmax / (2.0 * _R)) + 1e-9
+    # plane size H = h * S (h the sphere size, S the scale): dH/dx = S dh/dx + h dS/dx, with
+    # |dh/dx| <= grading / S and dS/dx = r / (2 R); a 1.5 margin covers the polygon distances
+    lip = 1.5 * (size.max_slope + size.edge * rmax / (2.0 * _R)) + 1e-9
     kmin = min(int(np.floor(np.log(hmax * 1.0001 / base) / np.log(_RHO))), 0)
     kmax = max(int(np.ceil(np.log(size.min_km * 0.9999 / base) / np.log(_RHO))) + 1, 1)
     # cells of side ~ f * spacing: the size function changes by at most ~0.35-0.7 spacing
@@ -694,7 +696,7 @@ def mesh_plate(plate, edge_km: float | None = None, smoothing_iterations: int = 
         zone = 2.0 * np.sin(CORNER_ZONE_EDGES * edge / _R / 2.0)
         hit = cKDTree(xyz[sharp_nodes]).query(xyz, distance_upper_bound=zone)[0] < zone
         near_corner |= hit[tri].any(axis=1)
-    exact = abs(float(sphere.spherical_polygon_area(ring_xyz)))
+    exact = float(plate.area_km2)  # the plate's region, also when larger than a hemisphere
     total = float(area.sum())
     el = _edges(tri)
     elen = _R * np.linalg.norm(xyz[el[:, 0]] - xyz[el[:, 1]], axis=1)
