@@ -35,6 +35,18 @@ MIN_SHEET = {"sheet.young_gpa": 1e-3, "sheet.thickness_km": 1e-2,
              "drag.viscosity_pa_s": 1e10, "drag.channel_km": 1e-2}
 
 
+def uniform_mesh_nodes(area_km2: float, edge_km: float) -> float:
+    """Nodes of a uniform mesh of near-equilateral triangles of side ``edge_km`` over
+    ``area_km2`` (one node per sqrt(3)/2 edge^2).
+
+    Examples
+    --------
+    >>> round(uniform_mesh_nodes(1.3e7, 50.0))
+    6004
+    """
+    return float(area_km2) / (_NODE_AREA * float(edge_km) ** 2)
+
+
 def _ring_integral(fine: float, edge: float, grading: float, inner: float, perimeter: float) -> float:
     """Excess node-area integral of a graded ring around a core of size ``fine``.
 
@@ -104,7 +116,7 @@ def estimate_mesh_nodes(plate) -> float:
     edge = float(plate.mesh.get("edge_km") or 50.0)
     grading = float(plate.mesh.get("grading") or 0.25)
     area = float(plate.area_km2)
-    total = area / (_NODE_AREA * edge ** 2)
+    total = uniform_mesh_nodes(area, edge)
     finest = edge
     for item in plate.mesh.get("refinement") or []:
         total += refinement_nodes(item, edge, grading, area)

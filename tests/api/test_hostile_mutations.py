@@ -29,7 +29,7 @@ from stressmap_api import create_app
 from stressmap_api.store import Store
 
 API = "/api/v1"
-PER_FIELD = 4
+PER_FIELD = 3
 CASE_LIMIT_S = 8.0
 _DELETE = object()
 
