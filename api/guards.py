@@ -78,8 +78,8 @@ def _check_media_type():
     view = current_app.view_functions.get(request.endpoint)
     if mimetype and mimetype in getattr(view, "accepts", ()):
         return  # a file upload of a type its view declares
-    if not request.content_length and not mimetype and request.endpoint is None:
-        return  # unknown route: let 404/405 answer
+    if not request.content_length and not mimetype:
+        return  # no body at all: nothing to misread (a view that needs one says so)
     taken = getattr(view, "accepts", ())
     wanted = (f"one of {', '.join(taken)}" if taken
               else "JSON with 'Content-Type: application/json'")
