@@ -18,8 +18,9 @@ from stressmap.analyses.indicators import read_indicators
 from stressmap.cli._progress import progress_bar
 from stressmap.cli.model import parse_bbox
 from stressmap.errors import InputError, problem
-from stressmap.formats import export
+from stressmap.io.files import write_atomic
 from stressmap.io.modeldir import read_model
+from stressmap.io.outputs import output_kind, write_points_output
 from stressmap.io.points import read_points
 from stressmap.model import plate_outline
 
@@ -210,10 +211,7 @@ def _cmd_calibrate(args) -> int:
 def _cmd_ensemble(args) -> int:
 
     out = Path(args.output)
-    fmt = out.suffix.lower().lstrip(".")
-    if fmt not in ("nc", "geojson", "json", "png"):
-        raise InputError(f"unsupported output type .{fmt}: use .nc, .geojson or .png",
-                         [problem("output must end in .nc, .geojson or .png", field="-o")])
+    fmt = output_kind(out, (".nc", ".geojson", ".json", ".csv", ".gpkg", ".png"))
     if args.members < 1:
         raise InputError("--members must be at least 1", [problem(f"got {args.members}",
                                                                   field="--members")])
@@ -249,17 +247,13 @@ def _cmd_ensemble(args) -> int:
     meta = {"caution": CAUTION, "model_name": model.summary.get("name", ""),
             "build_time": model.summary.get("build_time", ""), "members": args.members,
             "seed": seed, "distributions": json.dumps(distributions, sort_keys=True)}
-    if fmt == "nc":
-        out.write_bytes(export.netcdf_bytes(ds, meta))
-    elif fmt == "png":
+    if fmt == "png":
         caption = (f"Model {meta['model_name']} built {meta['build_time']}; {args.members} members, "
                    f"seed {seed}")
-        out.write_bytes(ensemble_png(ds, plate_outline(model), caption=caption))
+        write_atomic(out, ensemble_png(ds, plate_outline(model), caption=caption))
     else:
-        flat = flatten_percentiles(ds)
-        doc = (export.points_geojson(flat, props, meta) if args.points
-               else export.grid_geojson(flat, meta))
-        out.write_text(json.dumps(doc, allow_nan=False), encoding="utf-8")
+        write_points_output(out, ds, meta, props, grid=not args.points,
+                            flat=flatten_percentiles(ds))
     n_in = int(ds["inside"].values.astype(bool).sum())
     where = (f"{ds.sizes['point']} points" if "point" in ds.dims
              else f"a {ds.sizes['lat']} x {ds.sizes['lon']} grid")
@@ -317,7 +311,7 @@ def register(sub) -> None:
     q.add_argument("--spacing-km", type=float, metavar="K", help="grid spacing in km (with --bbox)")
     q.add_argument("--members", type=int, required=True, metavar="N", help="ensemble members")
     q.add_argument("-o", "--output", required=True, metavar="OUT",
-                   help="output file: .nc (CF netCDF), .geojson or .png")
+                   help="output file: .nc (CF netCDF), .geojson, .csv, .gpkg or .png")
     q.add_argument("--vary", action="append", metavar="GROUP[.PARAM]=KIND:A:B",
                    help="distribution of a group's weight or parameter: uniform:LOW:HIGH, "
                         "log-uniform:LOW:HIGH, normal:MEAN:STD (repeatable)")

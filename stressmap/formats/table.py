@@ -4,7 +4,8 @@ Rules for every CSV stressmap writes (CLI files and HTTP bodies alike):
 
 - the first line is the header; no comment lines. Provenance and the caution travel in a
   metadata sidecar (:func:`metadata_json`), HTTP headers and the JSON/GeoJSON bodies instead;
-- ``lon`` and ``lat`` (degrees, WGS84) are the first two columns;
+- ``lon`` and ``lat`` (degrees, WGS84) are columns of every table (first, unless the input's order
+  is echoed, as for indicator files);
 - booleans are ``true``/``false``; empty cells are nulls; floats keep up to 10 significant digits;
 - text cells that a spreadsheet would run as a formula (``=``, ``+``, ``-``, ``@``, tab, CR) get a
   leading apostrophe unless they are numbers (OWASP CSV injection);
@@ -85,8 +86,7 @@ def _kind(series) -> str:
 
 
 def _ordered(frame):
-    cols = [c for c in ("lon", "lat") if c in frame.columns]
-    return frame[cols + [c for c in frame.columns if c not in cols and c != "geometry"]]
+    return frame[[c for c in frame.columns if c != "geometry"]]
 
 
 def frame_csv(frame) -> str:
@@ -98,16 +98,18 @@ def frame_csv(frame) -> str:
     >>> f = pd.DataFrame({"name": ["=x", "b"], "lat": [2.0, 3.5], "lon": [1.0, None],
     ...                   "inside": [True, False]})
     >>> print(frame_csv(f), end="")
-    lon,lat,name,inside
-    1,2,'=x,true
-    ,3.5,b,false
+    name,lat,lon,inside
+    '=x,2,1,true
+    b,3.5,,false
     """
-    out = _ordered(frame).copy()
+    import pandas as pd
     from pandas.api.types import is_bool_dtype, is_float_dtype
 
+    out = _ordered(frame).copy()
     for c in out.columns:
-        if is_bool_dtype(out[c].dtype):
-            out[c] = np.where(out[c].to_numpy(bool), "true", "false")
+        if is_bool_dtype(out[c].dtype):  # numpy bool or pandas' nullable boolean
+            out[c] = [None if v is None or v is pd.NA else ("true" if v else "false")
+                      for v in out[c].tolist()]
         elif not is_float_dtype(out[c].dtype) and out[c].dtype.kind in "OUST":
             out[c] = out[c].map(csv_cell)
     return out.to_csv(index=False, float_format="%.10g", lineterminator="\n", na_rep="")

@@ -20,8 +20,9 @@ from stressmap.formats.indicators import (
     table_from_frame,
     table_from_geojson,
 )
-from stressmap.formats.table import PRJ_WGS84, metadata_json
 from stressmap.io.files import write_atomic
+from stressmap.formats.gpkg import frame_to_layer
+from stressmap.io.outputs import write_csv_with_sidecars, write_geopackage
 
 __all__ = [
     "read_table",
@@ -30,7 +31,6 @@ __all__ = [
     "indicators_csv",
     "indicators_geojson",
     "write_indicators",
-    "write_csv_with_sidecars",
 ]
 
 
@@ -71,19 +71,8 @@ def read_table(path):
     )
 
 
-def write_csv_with_sidecars(path, csv_text: str, csvt_text: str, meta: dict | None = None) -> Path:
-    """Write a CSV table and its sidecars: ``.csvt`` (GDAL column types), ``.prj`` (WGS84) and,
-    when ``meta`` is given, ``<stem>.json`` (caution and provenance). Each file atomically."""
-    path = Path(path)
-    write_atomic(path.with_suffix(".csvt"), csvt_text)
-    write_atomic(path.with_suffix(".prj"), PRJ_WGS84)
-    if meta:
-        write_atomic(path.with_suffix(".json"), metadata_json(meta, {path.name: "data table"}))
-    return write_atomic(path, csv_text)
-
-
 def write_indicators(frame, path, columns=None, meta: dict | None = None) -> Path:
-    """Write an indicator table as ``.csv`` (with sidecars) or ``.geojson`` (by the suffix)."""
+    """Write an indicator table as ``.csv`` (with sidecars), ``.geojson`` or ``.gpkg`` (by the suffix)."""
     path = Path(path)
     suffix = path.suffix.lower()
     if suffix == ".csv":
@@ -93,5 +82,8 @@ def write_indicators(frame, path, columns=None, meta: dict | None = None) -> Pat
         text = json.dumps(indicators_geojson(frame, columns, meta, name=path.stem), allow_nan=False,
                           ensure_ascii=False)
         return write_atomic(path, text)
-    raise IndicatorFileError(f"unsupported output type {suffix!r}: use .csv or .geojson",
-                             [problem("output must end in .csv or .geojson", field=str(path))])
+    if suffix == ".gpkg":
+        columns = list(columns or [c for c in frame.columns if c != "geometry"])
+        return write_geopackage(path, {path.stem: frame_to_layer(frame[columns])}, meta)
+    raise IndicatorFileError(f"unsupported output type {suffix!r}: use .csv, .geojson or .gpkg",
+                             [problem("output must end in .csv, .geojson or .gpkg", field=str(path))])

@@ -110,8 +110,9 @@ def test_compare_writes_everything(coarse_demo_dir, tmp_path, capsys):
     assert summary["caution"] == CAUTION and summary["model_id"] == coarse_demo_dir.name
     assert summary["overall"]["count"] > 250
     csv_text = (out / "indicators.csv").read_text()
-    assert csv_text.startswith("# caution: ")
-    table = pd.read_csv(out / "indicators.csv", comment="#")
+    assert csv_text.startswith("id,lon,lat,")  # header first; caution in the sidecar
+    assert json.loads((out / "indicators.json").read_text())["caution"] == CAUTION
+    table = pd.read_csv(out / "indicators.csv")
     assert {"misfit_deg", "predicted_shmax_azimuth_deg", "regime_agreement", "province"} <= set(table.columns)
     fc = json.loads((out / "indicators.geojson").read_text())
     assert fc["caution"] == CAUTION and len(fc["features"]) == len(table)
