@@ -19,6 +19,8 @@ from stressmap.analyses import sitescreen
 from stressmap.analyses.sitescreen import parse_request
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
+from stressmap.formats.screening import LAYERS, screen_csv, screen_layers, screen_meta
+from stressmap.formats.table import metadata_headers
 from stressmap.plot import screening as plot_screening
 
 __all__ = ["bp", "FORMATS", "PICTURES", "MAX_PLANE_SAMPLES"]
@@ -41,15 +43,17 @@ def _choice(value, options, field):
     return value.lower()
 
 
-def _run(req, model, model_info, fmt, picture):
+def _run(req, model, model_info, fmt, picture, layer=None):
 
     result = sitescreen.screen(req, model, model_info)
     if fmt == "json":
         return "json", sitescreen.result_json(result)
     if fmt == "geojson":
+        if layer:  # one geometry kind per answer, for GIS clients
+            return "geojson", screen_layers(result)[layer]
         return "geojson", sitescreen.result_geojson(result)
     if fmt == "csv":
-        return "csv", sitescreen.result_csv(result)
+        return "csv", (screen_csv(result), metadata_headers(screen_meta(result)))
 
     return "png", getattr(plot_screening, PICTURES[picture])(result)
 
@@ -65,6 +69,10 @@ def screen():
     fmt = _choice(body.get("format", request.args.get("format")), FORMATS, "format")
     picture = _choice(body.get("picture", request.args.get("picture")), tuple(PICTURES),
                       "picture")
+    layer = body.get("layer", request.args.get("layer"))
+    if layer is not None:
+        layer = _choice(layer, LAYERS, "layer")
+        body = {k: v for k, v in body.items() if k != "layer"}
     req = parse_request(body)
     n_planes = req.plane_strike_deg.size + (
         sum(len(a) for a in req.traces["lines"]) if req.traces else 0)
@@ -89,7 +97,7 @@ def screen():
         meta = store.meta(model_id)
         model_info = {"id": model_id, "name": meta.get("name"),
                       "build_time": meta.get("build_time")}
-    kind, payload = run_limited(_run, req, model, model_info, fmt, picture)
+    kind, payload = run_limited(_run, req, model, model_info, fmt, picture, layer)
     if kind == "json":
         return jsonify(payload)
     if kind == "geojson":
@@ -97,8 +105,9 @@ def screen():
                         content_type="application/geo+json")
     stem = "stressmap-screen"
     if kind == "csv":
-        return Response(payload, status=200, content_type="text/csv; charset=utf-8",
-                        headers={"Content-Disposition": f'attachment; filename="{stem}.csv"'})
+        text, headers = payload
+        headers["Content-Disposition"] = f'attachment; filename="{stem}.csv"'
+        return Response(text, status=200, content_type="text/csv; charset=utf-8", headers=headers)
 
     return Response(payload, status=200, content_type="image/png",
                     headers={"Content-Disposition": f'inline; filename="{stem}-{picture}.png"',

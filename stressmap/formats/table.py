@@ -22,8 +22,8 @@ import math
 
 import numpy as np
 
-__all__ = ["frame_csv", "frame_csvt", "metadata_json", "PRJ_WGS84", "GDAL_CSV_OPEN_OPTIONS",
-           "csv_cell"]
+__all__ = ["frame_csv", "frame_csvt", "metadata_json", "metadata_headers", "PRJ_WGS84",
+           "GDAL_CSV_OPEN_OPTIONS", "csv_cell"]
 
 _FORMULA_PREFIXES = ("=", "+", "-", "@", "\t", "\r")
 
@@ -160,3 +160,26 @@ def _json_value(v):
     if isinstance(v, (list, tuple)):
         return [_json_value(x) for x in v]
     return v
+
+
+def metadata_headers(meta: dict, limit: int = 2000) -> dict:
+    """``meta`` as HTTP response headers ``X-Stressmap-<Key>`` (for CSV bodies, which hold none).
+
+    Values are single-line ASCII (other characters escaped as ``\\uXXXX``; lists and objects as
+    JSON) cut to ``limit`` characters.
+
+    Examples
+    --------
+    >>> metadata_headers({"caution": "Screening only.", "model_id": "ab12", "weights": {"ridge": 1.2}})
+    {'X-Stressmap-Caution': 'Screening only.', 'X-Stressmap-Model-Id': 'ab12', 'X-Stressmap-Weights': '{"ridge": 1.2}'}
+    """
+    out = {}
+    for key, value in meta.items():
+        if value is None:
+            continue
+        text = json.dumps(_json_value(value), sort_keys=True) if isinstance(value, (dict, list, tuple)) \
+            else str(value)
+        text = json.dumps(" ".join(text.split()))[1:-1]  # one line, ASCII, escapes kept readable
+        name = "X-Stressmap-" + "-".join(part.capitalize() for part in str(key).split("_"))
+        out[name] = text[:limit]
+    return out
