@@ -92,6 +92,11 @@ def cf_dataset(ds, meta: dict | None = None):
     import xarray as xr
 
     out = ds.copy()
+    for name in [n for n in out.coords if n in out.dims and out[n].dtype.kind in "OUS"]:
+        # text labels of a dimension (e.g. load groups) are an auxiliary variable in CF, not a
+        # coordinate variable (which must be numeric and monotonic)
+        out = out.rename_vars({name: f"{name}_name"})
+        out[f"{name}_name"].attrs.setdefault("long_name", f"{name} names")
     grid = "lat" in out.dims and "lon" in out.dims
     points = not grid and "point" in out.dims and "lon" in out.variables and "lat" in out.variables
     if points:
@@ -104,6 +109,10 @@ def cf_dataset(ds, meta: dict | None = None):
             out[name] = _encode_categorical(name, var)
         elif var.dtype.kind == "f" and "_FillValue" not in var.attrs:
             out[name].encoding["_FillValue"] = np.nan
+        elif var.dtype.kind in "iu" and "flag_values" in var.attrs:
+            out[name].attrs["flag_values"] = np.asarray(var.attrs["flag_values"], dtype=var.dtype)
+        if "long_name" not in out[name].attrs and "standard_name" not in out[name].attrs:
+            out[name].attrs["long_name"] = name.replace("_", " ")
     for name in ("lat", "lon", "percentile"):
         if name in out.variables:
             attrs = {k: v for k, v in out[name].attrs.items() if k != "_FillValue"}
@@ -134,6 +143,7 @@ def cf_dataset(ds, meta: dict | None = None):
             out[name].attrs["coordinates"] = "lat lon"
     out.attrs = {k: v for k, v in out.attrs.items() if v is not None}
     out.attrs["Conventions"] = "CF-1.8"
+    out.attrs.setdefault("history", f"written by stressmap {_version()} as CF-1.8 netCDF")
     if points:
         out.attrs["featureType"] = "point"
     if meta:
@@ -149,6 +159,15 @@ def cf_dataset(ds, meta: dict | None = None):
 def _numeric_list(v) -> bool:
     return isinstance(v, (list, tuple)) and all(isinstance(x, (int, float)) and not isinstance(x, bool)
                                                  for x in v)
+
+
+def _version() -> str:
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("stressmap")
+    except PackageNotFoundError:  # pragma: no cover - running from a source tree
+        return "(source)"
 
 
 def netcdf_bytes(ds, meta: dict | None = None) -> bytes:
