@@ -179,7 +179,7 @@ def metadata_headers(meta: dict, limit: int = 2000) -> dict:
             continue
         text = json.dumps(_json_value(value), sort_keys=True) if isinstance(value, (dict, list, tuple)) \
             else str(value)
-        text = json.dumps(" ".join(text.split()))[1:-1]  # one line, ASCII, escapes kept readable
+        text = " ".join(text.split()).encode("ascii", "backslashreplace").decode("ascii")  # 1 line
         name = "X-Stressmap-" + "-".join(part.capitalize() for part in str(key).split("_"))
         out[name] = text[:limit]
     return out
