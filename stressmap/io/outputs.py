@@ -63,10 +63,12 @@ def write_geopackage(path, layers: dict, meta: dict | None = None) -> Path:
     os.close(fd)
     os.unlink(tmp)  # GDAL creates the file itself
     try:
-        for name, gdf in layers.items():
+        for i, (name, gdf) in enumerate(layers.items()):
             options = {"DESCRIPTION": description} if description else None
+            # GeoPackage 1.3: read without warnings by GDAL releases older than the bundled one
             pyogrio.write_dataframe(gdf, tmp, layer=layer_name(name), driver="GPKG",
-                                    layer_options=options)
+                                    layer_options=options,
+                                    dataset_options={"VERSION": "1.3"} if i == 0 else None)
         os.replace(tmp, path)
     except (OSError, RuntimeError, ValueError) as exc:  # pyogrio errors derive from these
         raise StorageError(f"could not write {path.name}: {exc}") from exc
