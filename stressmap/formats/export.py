@@ -148,7 +148,7 @@ def points_csv(ds, meta: dict | None = None, extra_properties: list[dict] | None
     ...                  "regime": ("point", ["reverse"]), "inside": ("point", [True])})
     >>> print(points_csv(ds, {"model_id": "m1"}, [{"well": "=cmd()"}]), end="")
     lon,lat,well,regime,inside
-    1,2,'=cmd(),reverse,true
+    1.0,2.0,'=cmd(),reverse,true
     """
     del meta
     return frame_csv(points_frame(ds, extra_properties))

@@ -32,8 +32,8 @@ def round_coord(values):
     return float(out) if out.ndim == 0 else out
 
 
-def round_array(values: np.ndarray) -> np.ndarray:
-    """Floats rounded to :data:`SIGNIFICANT_DIGITS` significant digits (NaN/inf kept), vectorised.
+def round_array(values: np.ndarray, digits: int = SIGNIFICANT_DIGITS) -> np.ndarray:
+    """Floats rounded to ``digits`` significant digits (NaN/inf kept), vectorised.
 
     Examples
     --------
@@ -44,7 +44,7 @@ def round_array(values: np.ndarray) -> np.ndarray:
     finite = np.isfinite(x) & (x != 0)
     mag = np.zeros(x.shape, dtype=int)
     mag[finite] = np.floor(np.log10(np.abs(x[finite]))).astype(int)
-    decimals = SIGNIFICANT_DIGITS - 1 - mag
+    decimals = digits - 1 - mag
     out = x.copy()
     for d in np.unique(decimals[finite]):  # one pass per decade present, not per value
         sel = finite & (decimals == d)

@@ -6,7 +6,8 @@ Rules for every CSV stressmap writes (CLI files and HTTP bodies alike):
   metadata sidecar (:func:`metadata_json`), HTTP headers and the JSON/GeoJSON bodies instead;
 - ``lon`` and ``lat`` (degrees, WGS84) are columns of every table (first, unless the input's order
   is echoed, as for indicator files);
-- booleans are ``true``/``false``; empty cells are nulls; floats keep up to 10 significant digits;
+- booleans are ``true``/``false``; empty cells are nulls; floats are rounded to 10 significant
+  digits;
 - text cells that a spreadsheet would run as a formula (``=``, ``+``, ``-``, ``@``, tab, CR) get a
   leading apostrophe unless they are numbers (OWASP CSV injection);
 - beside a file: ``<stem>.csvt`` gives GDAL's CSV reader the column types (``CoordX``/``CoordY``
@@ -22,10 +23,14 @@ import math
 
 import numpy as np
 
+from stressmap.formats.geojson import round_array
+
 __all__ = ["frame_csv", "frame_csvt", "metadata_json", "metadata_headers", "PRJ_WGS84",
            "GDAL_CSV_OPEN_OPTIONS", "csv_cell"]
 
 _FORMULA_PREFIXES = ("=", "+", "-", "@", "\t", "\r")
+#: Significant digits of floating-point CSV cells.
+CSV_DIGITS = 10
 
 #: WGS84 geographic lon/lat in the ESRI WKT1 flavour that .prj sidecars hold (from EPSG:4326).
 PRJ_WGS84 = ('GEOGCS["GCS_WGS_1984",DATUM["D_WGS_1984",SPHEROID["WGS_1984",6378137.0,'
@@ -99,7 +104,7 @@ def frame_csv(frame) -> str:
     ...                   "inside": [True, False]})
     >>> print(frame_csv(f), end="")
     name,lat,lon,inside
-    '=x,2,1,true
+    '=x,2.0,1.0,true
     b,3.5,,false
     """
     import pandas as pd
@@ -110,9 +115,11 @@ def frame_csv(frame) -> str:
         if is_bool_dtype(out[c].dtype):  # numpy bool or pandas' nullable boolean
             out[c] = [None if v is None or v is pd.NA else ("true" if v else "false")
                       for v in out[c].tolist()]
-        elif not is_float_dtype(out[c].dtype) and out[c].dtype.kind in "OUST":
+        elif is_float_dtype(out[c].dtype):  # 10 significant digits, vectorised (no per-cell format)
+            out[c] = round_array(out[c].to_numpy(dtype=float), CSV_DIGITS)
+        elif out[c].dtype.kind in "OUST":
             out[c] = out[c].map(csv_cell)
-    return out.to_csv(index=False, float_format="%.10g", lineterminator="\n", na_rep="")
+    return out.to_csv(index=False, lineterminator="\n", na_rep="")
 
 
 def frame_csvt(frame) -> str:
