@@ -65,8 +65,9 @@ def render(ds, fmt: str, meta: dict, *, grid: bool, model=None, extra_properties
 
     headers = {}
     if fmt == "geojson":
-        doc = (export.grid_geojson(ds, meta=meta) if grid
-               else export.points_geojson(ds, extra_properties=extra_properties, meta=meta))
+        doc = (export.grid_geojson(ds, meta=meta, name=stem) if grid  # name: the GIS layer name
+               else export.points_geojson(ds, extra_properties=extra_properties, meta=meta,
+                                          name=stem))
         body = current_app.json.dumps(doc)
     elif fmt == "csv":
         body = (export.grid_csv(ds) if grid

@@ -217,6 +217,7 @@ def test_field_url_serves_a_gis_layer(svc):
     _meta_ok(resp.json, model_id)
     feats = resp.json["features"]
     assert feats and all(f["properties"]["inside"] for f in feats)
+    assert resp.json["name"] == f"stressmap-{model_id[:8]}-field"  # the layer name GDAL shows
     same = client.post(f"{API}/models/{model_id}/predict",
                        json={"region": {"bbox": [-37, -37, 9, -3], "spacing_km": 400}}).json
     assert same["features"] == feats
