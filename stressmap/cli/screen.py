@@ -27,6 +27,7 @@ from stressmap.io.faults import read_fault_file
 from stressmap.io.files import write_atomic
 from stressmap.io.modeldir import read_model
 from stressmap.io.outputs import write_csv_with_sidecars, write_geojson, write_geopackage
+from stressmap.io.profiles import read_density_profile as _read_density_profile
 from stressmap.plot import screening as plot_screening
 
 __all__ = ["register", "build_request", "read_density_profile", "parse_pair", "format_text",
@@ -66,32 +67,8 @@ def parse_pair(text: str | None, option: str):
 
 
 def read_density_profile(path) -> dict:
-    """Density profile file (CSV): columns ``top_km``, ``density_kg_m3`` and optionally
-    ``gradient_kg_m3_per_km``; one row per layer from the surface down; '#' starts a comment.
-    """
-    import pandas as pd
-
-    path = Path(path)
-    try:
-        frame = pd.read_csv(path, comment="#", skipinitialspace=True)
-    except (OSError, ValueError) as exc:
-        raise InputError(f"cannot read density profile {path}: {exc}",
-                         [problem(str(exc), field="--density-profile")]) from exc
-    missing = [c for c in ("top_km", "density_kg_m3") if c not in frame.columns]
-    if missing:
-        raise InputError(f"density profile {path} lacks column(s) {', '.join(missing)}",
-                         [problem("required column missing", field=c) for c in missing])
-    out = {}
-    for col in ("top_km", "density_kg_m3", "gradient_kg_m3_per_km"):
-        if col not in frame.columns:
-            continue
-        values = pd.to_numeric(frame[col], errors="coerce")
-        bad = [i + 1 for i in range(len(values)) if not math.isfinite(values.iloc[i])]
-        if bad:
-            raise InputError(f"density profile {path}: column {col} has non-numbers",
-                             [problem("not a number", field=col, row=r) for r in bad])
-        out[col] = values.tolist()
-    return out
+    """Density profile file (CSV); see :func:`stressmap.io.profiles.read_density_profile`."""
+    return _read_density_profile(path)
 
 
 def build_request(args) -> dict:
