@@ -122,7 +122,6 @@ PENDING = {
     "stressmap.analyses.observed: core layer 'analyses' imports edge module stressmap.formats.export (formats)",
     "stressmap.analyses.sitescreen: core layer 'analyses' imports edge module stressmap.io.faults (io)",
     "stressmap.model.build: core module opens a file (open_dataset)",
-    "stressmap.model.plate: core layer 'model' imports edge module stressmap.io.plate_files (io)",
 }
 
 

@@ -43,7 +43,6 @@ from stressmap.io.faults import faults_from_geojson
 from stressmap.model import predict_points, unit_stress_at
 
 __all__ = [
-    "CAUTION_SUFFIX",
     "DEFAULTS",
     "ScreenRequest",
     "ScreenResult",
@@ -61,9 +60,6 @@ __all__ = [
 ]
 
 _log = logging.getLogger(__name__)
-
-#: Appended wherever the caution is printed in running text.
-CAUTION_SUFFIX = "Follow local codes and licensed practice."
 
 DEFAULTS = {
     "friction": 0.6,
@@ -995,7 +991,7 @@ def _fault_summary(result: ScreenResult) -> list[dict]:
 def result_json(result: ScreenResult) -> dict:
     """The JSON document of a screening (the CLI's ``--json`` and the service's answer)."""
     site = dict(result.site)
-    out = {"caution": f"{CAUTION} {CAUTION_SUFFIX}"}
+    out = {"caution": CAUTION}
     out["site"] = {"lon": site.pop("lon"), "lat": site.pop("lat")}
     out.update(site)
     if result.model_info:

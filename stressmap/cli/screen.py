@@ -9,8 +9,10 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from pathlib import Path
 
+from stressmap import validate
 from stressmap.analyses.indicators import read_indicators
 from stressmap.analyses.sitescreen import (
     parse_plane_text,
@@ -27,7 +29,7 @@ from stressmap.io.faults import read_fault_file
 from stressmap.io.files import write_atomic
 from stressmap.io.modeldir import read_model
 from stressmap.io.outputs import write_csv_with_sidecars, write_geojson, write_geopackage
-from stressmap.io.profiles import read_density_profile as _read_density_profile
+from stressmap.io.tables import read_csv_table
 from stressmap.plot import screening as plot_screening
 
 __all__ = ["register", "build_request", "read_density_profile", "parse_pair", "format_text",
@@ -53,22 +55,33 @@ def parse_pair(text: str | None, option: str):
     --------
     >>> parse_pair("0.5,0.8", "--friction-range")
     [0.5, 0.8]
+    >>> parse_pair("0.8", "--friction-range")
+    Traceback (most recent call last):
+    ...
+    stressmap.errors.InputError: --friction-range must be a pair LOW,HIGH of finite numbers, got the string '0.8'
     """
     if text is None:
         return None
-    parts = text.split(",")
-    try:
-        if len(parts) != 2:
-            raise ValueError
-        return [float(parts[0]), float(parts[1])]
-    except ValueError:
-        raise InputError(f"cannot read {option} {text!r}: use LOW,HIGH",
-                         [problem("expected two numbers LOW,HIGH", field=option)]) from None
+    problems: list = []
+    pair = validate.number_pair(text, option, problems, text=",")
+    validate.raise_problems(problems)
+    return list(pair)
 
 
 def read_density_profile(path) -> dict:
-    """Density profile file (CSV); see :func:`stressmap.io.profiles.read_density_profile`."""
-    return _read_density_profile(path)
+    """Density profile file (CSV): columns ``top_km``, ``density_kg_m3`` and optionally
+    ``gradient_kg_m3_per_km``; one row per layer from the surface down; '#' starts a comment.
+    """
+    frame = read_csv_table(path, ("top_km", "density_kg_m3"), what="density profile",
+                           field="--density-profile")
+    out: dict = {}
+    problems: list = []
+    for col in ("top_km", "density_kg_m3", "gradient_kg_m3_per_km"):
+        if col in frame.columns:
+            out[col] = [validate.number(validate.cell(v), col, problems, row=i + 1, text=True, required=True)
+                        for i, v in enumerate(frame[col].tolist())]
+    validate.raise_problems(problems, f"density profile {path}: {len(problems)} bad cell(s)")
+    return out
 
 
 def build_request(args) -> dict:
@@ -193,18 +206,47 @@ def format_text(doc: dict) -> str:
     return "\n".join(lines)
 
 
+_FIELD = re.compile(r"\b(?:uncertainty\.)?([a-z][a-z0-9]*(?:_[a-z0-9]+)+)\b")
+
+
+def flag_words(text: str, flags: dict) -> str:
+    """Name command-line flags instead of request fields in a note or an error message.
+
+    Only snake_case words (and ``uncertainty.<field>`` paths) that are the destination of an
+    option are replaced, so ordinary words stay as they are.
+
+    Examples
+    --------
+    >>> flags = {"ensemble_members": "--ensemble-members", "samples": "--samples"}
+    >>> flag_words("give ensemble_members or uncertainty.ensemble_members; 200 samples", flags)
+    'give --ensemble-members or --ensemble-members; 200 samples'
+    """
+    return _FIELD.sub(lambda m: flags.get(m.group(1), m.group(0)), str(text))
+
+
+def _with_flags(exc: InputError, flags: dict) -> InputError:
+    """The same error with request fields named as the flags that set them."""
+    probs = [{**p, "message": flag_words(p["message"], flags),
+              **({"field": flag_words(p["field"], flags)} if p.get("field") else {})}
+             for p in exc.problems]
+    return InputError(flag_words(exc.message, flags), probs)
+
+
 def _run(args) -> int:
-
-    doc = build_request(args)
-    req = parse_request(doc)
-    model = model_info = None
-    if args.model:
-
-        model = read_model(args.model)
-        summary = getattr(model, "summary", {}) or {}
-        model_info = {"directory": str(args.model), "name": summary.get("name"),
-                      "build_time": summary.get("build_time")}
-    result = screen(req, model, model_info)
+    flags = getattr(args, "flag_names", {}) or {}
+    try:
+        doc = build_request(args)
+        req = parse_request(doc)
+        model = model_info = None
+        if args.model:
+            model = read_model(args.model)
+            summary = getattr(model, "summary", {}) or {}
+            model_info = {"directory": str(args.model), "name": summary.get("name"),
+                          "build_time": summary.get("build_time")}
+        result = screen(req, model, model_info)
+    except InputError as exc:
+        raise _with_flags(exc, flags) from None
+    result.notes[:] = [flag_words(n, flags) for n in result.notes]
     out = result_json(result)
     meta = screen_meta(result)
     if args.csv:
@@ -309,4 +351,7 @@ def register(subparsers) -> None:
     g.add_argument("--mohr-png", metavar="FILE", help="write a Mohr diagram")
     g.add_argument("--polygon-png", metavar="FILE", help="write the stress polygon")
     g.add_argument("--map-png", metavar="FILE", help="write a map of traces coloured by margin")
-    p.set_defaults(handler=_run)
+    # option destinations -> their long flags, so notes and errors name what the user typed
+    flag_names = {a.dest: next(o for o in a.option_strings if o.startswith("--"))
+                  for a in p._actions if any(o.startswith("--") for o in a.option_strings)}
+    p.set_defaults(handler=_run, flag_names=flag_names)
