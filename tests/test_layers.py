@@ -121,7 +121,6 @@ PENDING = {
     "stressmap.analyses.indicators: core layer 'analyses' imports edge module stressmap.io.indicators (io)",
     "stressmap.analyses.observed: core layer 'analyses' imports edge module stressmap.formats.export (formats)",
     "stressmap.analyses.sitescreen: core layer 'analyses' imports edge module stressmap.io.faults (io)",
-    "stressmap.model.build: core module opens a file (open_dataset)",
 }
 
 

@@ -11,7 +11,7 @@ No paths here (:mod:`stressmap.io.plate_files` opens the files).
   Empty attributes (nulls of a GIS table) are left out, so each feature carries only the
   parameters that apply to it.
 * **Parameter file**: TOML (``.toml``) or JSON (``.json``) with the other document fields:
-  ``name``, ``description``, ``ridge_push``, ``drag``, ``sheet``, ``mesh`` (and ``provinces``
+  ``name``, ``description``, ``ridge_push``, ``gpe``, ``drag``, ``sheet``, ``mesh`` (and ``provinces``
   if the boundary file has none).
 
 The result is a plate model document (dict) for :func:`stressmap.model.plate.parse_plate`, which

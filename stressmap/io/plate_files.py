@@ -111,8 +111,8 @@ def load_plate_files(boundary_path, params_path=None) -> dict:
     boundary_path : path
         GeoJSON or GeoPackage with LineString segments (and optionally Polygon provinces).
     params_path : path, optional
-        TOML or JSON with ``name``, ``description``, ``ridge_push``, ``drag``, ``sheet``,
-        ``mesh`` and optionally ``provinces``. Without it the name is the boundary file's stem
+        TOML or JSON with ``name``, ``description``, ``ridge_push``, ``gpe``, ``drag``,
+        ``sheet``, ``mesh`` and optionally ``provinces``. Without it the name is the boundary file's stem
         and everything else takes its defaults.
 
     Returns
