@@ -42,8 +42,20 @@ def records(ds, dim: str = "point") -> tuple[np.ndarray, np.ndarray, list[str], 
     lon = np.asarray(var["lon"].values, dtype=float).ravel()
     lat = np.asarray(var["lat"].values, dtype=float).ravel()
     names = [str(v) for v in ds.data_vars if v not in ("lon", "lat") and var[v].dims == (dim,)]
-    cols = [np.asarray(var[v].values).ravel() for v in names]
+    cols = [_as_bool(var[v]) for v in names]
     return lon, lat, names, cols
+
+
+#: flag_meanings of 0/1 integer variables that are booleans in a table (CF stores them as int8).
+_BOOLEAN_FLAGS = ("false true", "outside inside")
+
+
+def _as_bool(variable) -> np.ndarray:
+    """A variable's values as 1-D; 0/1 flag variables (e.g. ``inside`` from netCDF) as booleans."""
+    values = np.asarray(variable.values).ravel()
+    if values.dtype.kind in "iu" and variable.attrs.get("flag_meanings") in _BOOLEAN_FLAGS:
+        return values.astype(bool)
+    return values
 
 
 def _column_values(col: np.ndarray) -> list:

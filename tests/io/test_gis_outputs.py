@@ -116,6 +116,11 @@ def test_ensemble_netcdf_has_one_band_per_percentile(gdal_tools, coarse_demo_dir
         assert (int(size[0]), int(size[1])) == (ds.sizes["lon"], ds.sizes["lat"])
     report = _cf_check(out, tmp_path)
     assert _failures(report, "high_priorities") == [] and _failures(report, "medium_priorities") == []
+    table = tmp_path / "ens.csv"  # the same grid as a table: inside is a boolean again
+    assert main(["ensemble", str(coarse_demo_dir), "--bbox=-30,-30,-5,-5", "--spacing-km", "500",
+                 "--members", "30", "-o", str(table)]) == 0
+    fields = _fields(run_tool(gdal_tools, "ogrinfo", "-ro", "-so", "-al", str(table)))
+    assert fields["inside"] == "Integer(Boolean)" and fields["s_hmax_mpa_p95"] == "Real"
 
 
 def test_geopackage_outputs_have_named_layers_of_one_kind(gdal_tools, coarse_demo_dir, pts_csv,
