@@ -287,7 +287,10 @@ def items(collection_id: str):
     unknown = sorted(set(request.args) - _ITEM_PARAMS)
     if unknown:
         raise _bad_request(f"unknown query parameter(s): {', '.join(unknown)} (use bbox, limit, "
-                           "offset)", unknown[0])
+                           "offset, f)", unknown[0])
+    fmt = request.args.get("f")
+    if fmt is not None and fmt not in ("json", "geojson"):
+        raise _bad_request(f"f must be json or geojson, got {fmt[:40]!r}", "f")
     limit = _int_param("limit", DEFAULT_LIMIT, 1, MAX_LIMIT)
     offset = _int_param("offset", 0, 0)
     bbox = _bbox_param()

@@ -96,6 +96,8 @@ def test_items_page_and_filter_by_bbox(served):
     assert box["numberMatched"] == int(inside.sum()) > 0
     props = box["features"][0]["properties"]
     assert {"shmax_azimuth_deg", "regime", "s_hmax_mpa", "s_hmin_mpa"} <= set(props)
+    assert client.get(url + "?bbox=-20,-25,-5,-10&limit=10000&f=json").json["numberMatched"] == \
+        box["numberMatched"]
     one = client.get(f"{url}/{box['features'][0]['id']}")
     assert one.status_code == 200 and one.json["id"] == box["features"][0]["id"]
 
@@ -112,7 +114,8 @@ def test_outline_and_boundary(served):
 
 @pytest.mark.parametrize("query, field", [("limit=0", "limit"), ("limit=x", "limit"),
                                           ("offset=-1", "offset"), ("bbox=1,2,3", "bbox"),
-                                          ("bbox=0,10,5,5", "bbox"), ("colour=red", "colour")])
+                                          ("bbox=0,10,5,5", "bbox"), ("colour=red", "colour"),
+                                          ("f=html", "f")])
 def test_bad_query_parameters_are_400(served, query, field):
     _, client, model_id = served
     resp = client.get(f"{API}/features/collections/{model_id}-field/items?{query}")
