@@ -27,7 +27,7 @@ from stressmap.formats.gpkg import geojson_to_layer
 from stressmap.formats.screening import screen_csv, screen_csvt, screen_layers, screen_meta
 from stressmap.io.faults import read_fault_file
 from stressmap.io.files import write_atomic
-from stressmap.io.modeldir import read_model
+from stressmap.io.networkdir import read_any_model
 from stressmap.io.outputs import write_csv_with_sidecars, write_geojson, write_geopackage
 from stressmap.io.tables import read_csv_table
 from stressmap.plot import screening as plot_screening
@@ -239,7 +239,7 @@ def _run(args) -> int:
         req = parse_request(doc)
         model = model_info = None
         if args.model:
-            model = read_model(args.model)
+            model = read_any_model(args.model)
             summary = getattr(model, "summary", {}) or {}
             model_info = {"directory": str(args.model), "name": summary.get("name"),
                           "build_time": summary.get("build_time")}
