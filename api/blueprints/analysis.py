@@ -31,7 +31,6 @@ from stressmap.analyses.calibrate import calibrate
 from stressmap.analyses.ensemble import (
     DEFAULT_PERCENTILES,
     ensemble_grid,
-    ensemble_png,
     ensemble_points,
     flatten_percentiles,
     validate_distributions,
@@ -44,6 +43,7 @@ from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
 from stressmap.formats import export
 from stressmap.model import plate_outline
+from stressmap.plot.ensemble import ensemble_png
 
 __all__ = ["bp", "run_calibration", "run_ensemble_job", "ENSEMBLE_FILE"]
 

@@ -10,7 +10,6 @@ from stressmap import CAUTION
 from stressmap.analyses.calibrate import calibrate
 from stressmap.analyses.ensemble import (
     ensemble_grid,
-    ensemble_png,
     ensemble_points,
     flatten_percentiles,
 )
@@ -22,6 +21,7 @@ from stressmap.formats import export
 from stressmap.io.modeldir import read_model
 from stressmap.io.points import read_points
 from stressmap.model import plate_outline
+from stressmap.plot.ensemble import ensemble_png
 
 __all__ = ["register", "parse_bounds", "parse_vary", "parse_percentiles", "load_config"]
 
