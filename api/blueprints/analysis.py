@@ -35,13 +35,10 @@ from stressmap.analyses.ensemble import (
     flatten_percentiles,
     validate_distributions,
 )
-from stressmap.analyses.indicators import (
-    indicators_from_csv_text,
-    indicators_from_geojson,
-)
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
 from stressmap.formats import export
+from stressmap.formats.indicators import indicators_from_csv_text, indicators_from_geojson
 from stressmap.model import plate_outline
 from stressmap.plot.ensemble import ensemble_png
 

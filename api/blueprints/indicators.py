@@ -26,19 +26,17 @@ from stressmap_api.limits import run_limited
 from stressmap_api.store import check_id, get_store
 
 from stressmap.analyses.compare import COMPARISON_COLUMNS, compare
-from stressmap.analyses.indicators import (
-    CONVERT_COLUMNS,
-    indicators_from_csv_text,
-    indicators_from_geojson,
-)
-from stressmap.analyses.observed import (
-    observed_geojson,
-    observed_grid,
-    observed_netcdf_bytes,
-)
+from stressmap.analyses.indicators import CONVERT_COLUMNS
+from stressmap.analyses.observed import observed_grid
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
-from stressmap.io.indicators import indicators_csv, indicators_geojson
+from stressmap.formats.indicators import (
+    indicators_csv,
+    indicators_from_csv_text,
+    indicators_from_geojson,
+    indicators_geojson,
+)
+from stressmap.formats.observed import observed_geojson, observed_netcdf_bytes
 from stressmap.plot.indicators import comparison_map_png, rose_png
 
 __all__ = ["bp", "COMPARE_FORMATS", "SMOOTH_FORMATS"]

@@ -39,7 +39,6 @@ import numpy as np
 
 from stressmap.errors import IndicatorFileError, problem
 from stressmap.geo import circular, focal
-from stressmap.io.indicators import read_table, table_from_csv_text, table_from_geojson
 
 __all__ = [
     "TYPES",
@@ -50,9 +49,6 @@ __all__ = [
     "CONVERT_COLUMNS",
     "shmax_from_feature_azimuth",
     "prepare_indicators",
-    "read_indicators",
-    "indicators_from_geojson",
-    "indicators_from_csv_text",
     "summarise",
 ]
 
@@ -349,41 +345,6 @@ def prepare_indicators(table, skip_bad: bool = False, problems=None, name: str =
     gdf.attrs["skipped"] = probs
     gdf.attrs["source"] = name
     return gdf
-
-
-def read_indicators(path, skip_bad: bool = False):
-    """Read, validate and convert an indicator file (CSV, GeoJSON or GeoPackage).
-
-    See :func:`prepare_indicators` for the result; file reading is in
-    :mod:`stressmap.io.indicators`.
-    """
-    from pathlib import Path
-
-
-    table, probs = read_table(path)
-    return prepare_indicators(table, skip_bad=skip_bad, problems=probs, name=Path(path).name)
-
-
-def indicators_from_geojson(doc, skip_bad: bool = False, field: str = "indicators"):
-    """Indicators from a GeoJSON FeatureCollection dict (as sent to the HTTP service)."""
-
-    table, probs = table_from_geojson(doc, field=field)
-    return prepare_indicators(table, skip_bad=skip_bad, problems=probs, name=field)
-
-
-def indicators_from_csv_text(text: str, skip_bad: bool = False, name: str = "indicators"):
-    """Indicators from CSV text.
-
-    Examples
-    --------
-    >>> gdf = indicators_from_csv_text(
-    ...     "id,lon,lat,type,azimuth_deg\\nB1,5,45,breakout,10\\nT1,5,45,tensile_fracture,10\\n")
-    >>> gdf["shmax_azimuth_deg"].tolist(), gdf["sigma_deg"].tolist(), gdf["weight"].tolist()
-    ([100.0, 10.0], [20.0, 20.0], [1.0, 1.0])
-    """
-
-    table, probs = table_from_csv_text(text, name)
-    return prepare_indicators(table, skip_bad=skip_bad, problems=probs, name=name)
 
 
 def _stats(az, w):

@@ -13,7 +13,7 @@ The node's value is the weighted axial mean of the SHmax azimuths (doubled angle
 indicators within the radius. A node keeps its mean only with ``count >= min_count`` and
 ``dispersion_deg <= max_dispersion_deg``; otherwise ``shmax_azimuth_deg`` is NaN and ``status``
 says why. Pure numpy core (:func:`smooth_at`) with a k-d tree for the neighbour pairs; the grid
-builder returns a CF-1.8 xarray Dataset; GeoJSON and netCDF serialisers at the end.
+builder returns a CF-1.8 xarray Dataset (GeoJSON and netCDF: :mod:`stressmap.formats.observed`).
 """
 
 from __future__ import annotations
@@ -22,7 +22,6 @@ import numpy as np
 
 from stressmap.constants import CAUTION, EARTH_RADIUS_KM
 from stressmap.errors import InputError, problem
-from stressmap.formats.export import netcdf_bytes
 from stressmap.geo import circular
 
 __all__ = [
@@ -31,8 +30,6 @@ __all__ = [
     "smooth_at",
     "grid_axes",
     "observed_grid",
-    "observed_geojson",
-    "observed_netcdf_bytes",
 ]
 
 #: Node status codes (``status`` variable): why a node has or lacks a mean.
@@ -257,48 +254,3 @@ def observed_grid(indicators, bbox, radius_km, spacing_km=None, min_count=3,
         },
     )
     return ds
-
-
-def observed_geojson(ds, meta: dict | None = None, with_empty: bool = False) -> dict:
-    """Grid nodes as GeoJSON Point features (nodes without indicators left out unless ``with_empty``).
-
-    Properties: ``shmax_azimuth_deg`` (null where rejected), ``count``, ``dispersion_deg``,
-    ``mean_resultant_length``, ``status`` (words). Top-level members: ``caution`` and the
-    smoothing parameters, plus ``meta``.
-    """
-    lon2, lat2 = np.meshgrid(ds["lon"].values, ds["lat"].values)
-    flat = {k: ds[k].values.ravel() for k in ("shmax_azimuth_deg", "count", "dispersion_deg",
-                                                "mean_resultant_length", "status")}
-    idx = np.arange(lon2.size) if with_empty else np.flatnonzero(flat["count"] > 0)
-
-    def num(v):
-        v = float(v)
-        return v if np.isfinite(v) else None
-
-    lon_f = np.mod(lon2.ravel() + 180.0, 360.0) - 180.0
-    feats = [
-        {
-            "type": "Feature",
-            "geometry": {"type": "Point", "coordinates": [float(lon_f[i]), float(lat2.ravel()[i])]},
-            "properties": {
-                "shmax_azimuth_deg": num(flat["shmax_azimuth_deg"][i]),
-                "count": int(flat["count"][i]),
-                "dispersion_deg": num(flat["dispersion_deg"][i]),
-                "mean_resultant_length": num(flat["mean_resultant_length"][i]),
-                "status": STATUS[int(flat["status"][i])],
-            },
-        }
-        for i in idx
-    ]
-    out = {"type": "FeatureCollection", "caution": CAUTION}
-    out.update({k: ds.attrs[k] for k in ("radius_km", "spacing_km", "min_count", "max_dispersion_deg")
-                if k in ds.attrs})
-    out.update(meta or {})
-    out["features"] = feats
-    return out
-
-
-def observed_netcdf_bytes(ds, meta: dict | None = None) -> bytes:
-    """The grid as CF netCDF-4 bytes (via :func:`stressmap.formats.export.netcdf_bytes`)."""
-
-    return netcdf_bytes(ds, meta)

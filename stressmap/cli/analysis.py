@@ -13,11 +13,11 @@ from stressmap.analyses.ensemble import (
     ensemble_points,
     flatten_percentiles,
 )
-from stressmap.analyses.indicators import read_indicators
 from stressmap.cli._progress import progress_bar
 from stressmap.cli.model import parse_bbox
 from stressmap.errors import InputError, problem
 from stressmap.formats import export
+from stressmap.io.indicators import read_indicators
 from stressmap.io.modeldir import read_model
 from stressmap.io.points import read_points
 from stressmap.model import plate_outline

@@ -23,16 +23,13 @@ import sys
 from pathlib import Path
 
 from stressmap.analyses.compare import COMPARISON_COLUMNS, compare
-from stressmap.analyses.indicators import CONVERT_COLUMNS, read_indicators, summarise
-from stressmap.analyses.observed import (
-    observed_geojson,
-    observed_grid,
-    observed_netcdf_bytes,
-)
+from stressmap.analyses.indicators import CONVERT_COLUMNS, summarise
+from stressmap.analyses.observed import observed_grid
 from stressmap.cli.model import parse_bbox, parse_weights
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
-from stressmap.io.indicators import write_indicators
+from stressmap.formats.observed import observed_geojson, observed_netcdf_bytes
+from stressmap.io.indicators import read_indicators, write_indicators
 from stressmap.io.modeldir import read_model
 from stressmap.plot.indicators import comparison_map_png, rose_png
 

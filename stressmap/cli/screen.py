@@ -11,19 +11,17 @@ import json
 import math
 from pathlib import Path
 
-from stressmap.analyses.indicators import read_indicators
 from stressmap.analyses.sitescreen import (
     parse_plane_text,
     parse_request,
     parse_site_text,
-    result_csv,
-    result_geojson,
-    result_json,
     screen,
 )
 from stressmap.cli.model import parse_weights
 from stressmap.errors import InputError, problem
+from stressmap.formats.screening import result_csv, result_geojson, result_json
 from stressmap.io.faults import read_fault_file
+from stressmap.io.indicators import read_indicators
 from stressmap.io.modeldir import read_model
 from stressmap.plot import screening as plot_screening
 
@@ -107,7 +105,7 @@ def build_request(args) -> dict:
             doc["planes"] += [{"strike_deg": s, "dip_deg": d, "name": n}
                               for s, d, n in zip(pl["strike_deg"], pl["dip_deg"], pl["name"])]
         else:
-            doc["faults"] = collection
+            doc["faults"] = parsed
     unc = {}
     for key, option in (("friction_range", "--friction-range"),
                         ("pore_pressure_range_mpa", "--pore-pressure-range-mpa"),

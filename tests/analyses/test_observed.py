@@ -12,6 +12,7 @@ from numpy.testing import assert_allclose
 from stressmap.analyses import observed
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError
+from stressmap.formats.observed import observed_geojson, observed_netcdf_bytes
 
 
 @pytest.fixture(scope="module")
@@ -101,14 +102,14 @@ def test_antimeridian_bbox():
 
 def test_outputs_cf_netcdf_and_geojson(cloud):
     ds = observed.observed_grid(cloud, bbox=(0, 40, 10, 48), radius_km=120.0)
-    data = observed.observed_netcdf_bytes(ds)
+    data = observed_netcdf_bytes(ds)
     back = _open_nc(data)
     assert back.attrs["Conventions"] == "CF-1.8"
     assert back["lat"].attrs["units"] == "degrees_north"
     assert back["shmax_azimuth_deg"].attrs["units"] == "degree"
     assert_allclose(back["count"].values, ds["count"].values)
     back.close()
-    fc = observed.observed_geojson(ds)
+    fc = observed_geojson(ds)
     assert fc["caution"] == CAUTION
     assert len(fc["features"]) == int((ds["count"].values > 0).sum())
     props = fc["features"][0]["properties"]

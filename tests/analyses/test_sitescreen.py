@@ -8,7 +8,9 @@ from numpy.testing import assert_allclose
 
 from stressmap.analyses import screening as sc
 from stressmap.errors import InputError
-from stressmap.analyses.sitescreen import parse_request, result_json, screen
+from stressmap.analyses.sitescreen import screen
+from stressmap.formats.screening import parse_request_json as parse_request
+from stressmap.formats.screening import result_json
 
 SITE = {"site": [-15.0, -20.0], "depth_km": 3.0, "shmax_azimuth_deg": 40.0}
 
@@ -131,7 +133,7 @@ def test_indicator_derived_spread_without_a_model():
 
 
 def test_sampling_in_chunks_equals_one_pass(monkeypatch):
-    import stressmap.analyses.sitescreen as ss
+    import stressmap.analyses.site_sampling as ss
 
     body = dict(regime="strike-slip", planes=["040/60", "130/80", "010/90"],
                 uncertainty={"samples": 50, "seed": 1, "friction_range": [0.5, 0.7]})

@@ -139,7 +139,7 @@ def test_smooth_geojson_and_netcdf(client, demo_fc):
 def test_smooth_matches_core(client):
     import pandas as pd
 
-    from stressmap.analyses.indicators import indicators_from_csv_text
+    from stressmap.formats.indicators import indicators_from_csv_text
     from stressmap.analyses.observed import observed_grid
 
     body = {"indicators_csv": SMALL_CSV, "bbox": [9, 44, 15, 47], "radius_km": 300, "min_count": 2,

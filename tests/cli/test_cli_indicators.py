@@ -13,7 +13,8 @@ from numpy.testing import assert_allclose
 
 from stressmap.cli import main
 from stressmap.constants import CAUTION
-from stressmap.analyses.indicators import CONVERT_COLUMNS, read_indicators
+from stressmap.analyses.indicators import CONVERT_COLUMNS
+from stressmap.io.indicators import read_indicators
 
 DATA = Path(__file__).parents[1] / "data"
 SMALL = DATA / "indicators_small.csv"

@@ -11,7 +11,8 @@ from numpy.testing import assert_allclose
 from stressmap import CAUTION
 from stressmap.plot import screening as ps
 from stressmap.analyses import screening as sc
-from stressmap.analyses.sitescreen import parse_request, screen
+from stressmap.analyses.sitescreen import screen
+from stressmap.formats.screening import parse_request_json as parse_request
 
 
 @pytest.fixture(scope="module")
