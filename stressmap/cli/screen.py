@@ -17,12 +17,14 @@ from stressmap.analyses.sitescreen import (
     parse_site_text,
     screen,
 )
+from stressmap import validate
 from stressmap.cli.model import parse_weights
 from stressmap.errors import InputError, problem
 from stressmap.formats.screening import result_csv, result_geojson, result_json
 from stressmap.io.faults import read_fault_file
 from stressmap.io.indicators import read_indicators
 from stressmap.io.modeldir import read_model
+from stressmap.io.tables import read_csv_table
 from stressmap.plot import screening as plot_screening
 
 __all__ = ["register", "build_request", "read_density_profile", "parse_pair", "format_text"]
@@ -52,28 +54,15 @@ def read_density_profile(path) -> dict:
     """Density profile file (CSV): columns ``top_km``, ``density_kg_m3`` and optionally
     ``gradient_kg_m3_per_km``; one row per layer from the surface down; '#' starts a comment.
     """
-    import pandas as pd
-
-    path = Path(path)
-    try:
-        frame = pd.read_csv(path, comment="#", skipinitialspace=True)
-    except (OSError, ValueError) as exc:
-        raise InputError(f"cannot read density profile {path}: {exc}",
-                         [problem(str(exc), field="--density-profile")]) from exc
-    missing = [c for c in ("top_km", "density_kg_m3") if c not in frame.columns]
-    if missing:
-        raise InputError(f"density profile {path} lacks column(s) {', '.join(missing)}",
-                         [problem("required column missing", field=c) for c in missing])
-    out = {}
+    frame = read_csv_table(path, ("top_km", "density_kg_m3"), what="density profile",
+                           field="--density-profile")
+    out: dict = {}
+    problems: list = []
     for col in ("top_km", "density_kg_m3", "gradient_kg_m3_per_km"):
-        if col not in frame.columns:
-            continue
-        values = pd.to_numeric(frame[col], errors="coerce")
-        bad = [i + 1 for i in range(len(values)) if not math.isfinite(values.iloc[i])]
-        if bad:
-            raise InputError(f"density profile {path}: column {col} has non-numbers",
-                             [problem("not a number", field=col, row=r) for r in bad])
-        out[col] = values.tolist()
+        if col in frame.columns:
+            out[col] = [validate.number(validate.cell(v), col, problems, row=i + 1, text=True, required=True)
+                        for i, v in enumerate(frame[col].tolist())]
+    validate.raise_problems(problems, f"density profile {path}: {len(problems)} bad cell(s)")
     return out
 
 

@@ -21,8 +21,7 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
-
+from stressmap import validate
 from stressmap.errors import InputError, problem
 
 __all__ = ["COMPASS_POINTS", "FaultInput", "faults_from_geojson", "faults_from_records",
@@ -65,29 +64,88 @@ class FaultInput(dict):
     """
 
 
-def _num(props, key, where, problems, required=True):
-    value = props.get(key)
-    if value is None or value == "":
-        if required:
-            problems.append(problem(f"{key} is required", field=key, row=where))
-        return math.nan
+def _cell(props: dict, key: str, *aliases: str):
+    """A property value, or :data:`validate.MISSING` when absent, null, empty or NaN (CSV)."""
+    for k in (key, *aliases):
+        value = validate.cell(props.get(k))
+        if value is not validate.MISSING:
+            return value
+    return validate.MISSING
+
+
+def _dip(props: dict, row: int, problems: list) -> float:
+    value = validate.number(_cell(props, "dip_deg"), "dip_deg", problems, row=row, text=True,
+                            required=True, low=0.0, high=90.0)
+    return math.nan if value is None else value
+
+
+def _trace_lines(geom: dict, gtype: str, row: int, problems: list) -> list | None:
+    """The (k, 2) lon/lat vertex arrays of a LineString or MultiLineString, or None."""
+    coords = geom.get("coordinates")
+    parts = [coords] if gtype == "LineString" else coords
+    if not isinstance(parts, list) or not parts:
+        parts = [None]
+    lines = []
+    for part in parts:
+        found: list = []
+        arr = validate.positions(part, "coordinates", found, min_count=2, lon_range=None)
+        if arr is None:
+            detail = found[0]["message"] if found else "no vertices"
+            where = found[0].get("field", "coordinates") if found else "coordinates"
+            problems.append(problem(f"a trace needs two or more [lon, lat] vertices with "
+                                    f"latitudes in [-90, 90]; {where}: {detail}",
+                                    field="geometry", row=row))
+            return None
+        lines.append(arr)
+    return lines
+
+
+def _add_trace(traces: dict, props: dict, geom: dict, gtype: str, i: int, name: str,
+               problems: list) -> None:
+    lines = _trace_lines(geom, gtype, i, problems)
+    dip = _dip(props, i, problems)
+    raw_dd = _cell(props, "dip_direction_deg", "dip_direction")
     try:
-        out = float(value)
+        dd = parse_dip_direction(None if raw_dd is validate.MISSING else raw_dd)
     except (TypeError, ValueError):
-        problems.append(problem(f"{key} must be a number, got {value!r}", field=key, row=where))
-        return math.nan
-    if not math.isfinite(out):
-        problems.append(problem(f"{key} must be finite", field=key, row=where))
-    return out
+        problems.append(problem(f"dip_direction_deg must be degrees or a compass point, "
+                                f"got {raw_dd!r}", field="dip_direction_deg", row=i))
+        dd = math.nan
+    for arr in lines or ():
+        traces["lines"].append(arr)
+        traces["dip_deg"].append(dip)
+        traces["dip_direction_deg"].append(dd)
+        traces["name"].append(name)
+        traces["feature"].append(i - 1)
+
+
+def _add_plane(planes: dict, props: dict, geom: dict, gtype, i: int, name: str,
+               problems: list) -> None:
+    strike = validate.number(_cell(props, "strike_deg"), "strike_deg", problems, row=i,
+                             text=True, required=True)
+    dip = _dip(props, i, problems)
+    xy = None
+    if gtype == "Point" and geom.get("coordinates") is not None:
+        xy = validate.position(geom.get("coordinates"), "geometry", problems, row=i,
+                               lon_range=None)
+    planes["strike_deg"].append(math.nan if strike is None else strike)
+    planes["dip_deg"].append(dip)
+    planes["name"].append(name)
+    planes["lon"].append(xy[0] if xy else math.nan)
+    planes["lat"].append(xy[1] if xy else math.nan)
+    planes["feature"].append(i - 1)
 
 
 def faults_from_geojson(collection: dict, field: str = "faults") -> FaultInput:
     """Split a GeoJSON FeatureCollection into strike/dip planes and line traces.
 
+    Numbers and positions are checked by :mod:`stressmap.validate` (the same messages as every
+    other reader); CSV cells may hold numbers as text.
+
     Raises
     ------
     InputError
-        One problem per bad feature (row = 1-based feature number).
+        One problem per bad field of a feature (row = 1-based feature number).
 
     Examples
     --------
@@ -99,6 +157,12 @@ def faults_from_geojson(collection: dict, field: str = "faults") -> FaultInput:
     >>> out = faults_from_geojson(fc)
     >>> out["traces"]["name"], out["traces"]["dip_direction_deg"], out["planes"]["strike_deg"]
     (['A'], [90.0], [30.0])
+    >>> fc["features"][1]["properties"]["dip_deg"] = 95
+    >>> faults_from_geojson(fc)
+    Traceback (most recent call last):
+    ...
+    stressmap.errors.InputError: faults: 1 problem(s) with the fault features
+      - row 2, field dip_deg: dip_deg must be <= 90, got 95
     """
     if not isinstance(collection, dict) or collection.get("type") != "FeatureCollection":
         raise InputError(f"{field} must be a GeoJSON FeatureCollection",
@@ -116,88 +180,44 @@ def faults_from_geojson(collection: dict, field: str = "faults") -> FaultInput:
             continue
         props = feat.get("properties") or {}
         geom = feat.get("geometry") or {}
+        if not isinstance(props, dict):
+            problems.append(problem("properties must be an object", field="properties", row=i))
+            continue
         gtype = geom.get("type") if isinstance(geom, dict) else None
         name = str(props.get("name", props.get("id", f"fault {i}")))
         if gtype in ("LineString", "MultiLineString"):
-            coords = geom.get("coordinates") or []
-            parts = [coords] if gtype == "LineString" else coords
-            lines = []
-            for part in parts:
-                try:
-                    arr = np.asarray(part, dtype=float)
-                    if arr.ndim != 2 or arr.shape[0] < 2 or arr.shape[1] < 2:
-                        raise ValueError
-                    arr = arr[:, :2]
-                    if not (np.isfinite(arr).all() and (np.abs(arr[:, 1]) <= 90).all()):
-                        raise ValueError
-                except (TypeError, ValueError):
-                    problems.append(problem("a trace needs two or more [lon, lat] vertices with "
-                                            "latitudes in [-90, 90]", field="geometry", row=i))
-                    lines = None
-                    break
-                lines.append(arr)
-            dip = _num(props, "dip_deg", i, problems)
-            if math.isfinite(dip) and not 0.0 <= dip <= 90.0:
-                problems.append(problem(f"dip_deg must be between 0 and 90, got {dip}",
-                                        field="dip_deg", row=i))
-            raw_dd = props.get("dip_direction_deg", props.get("dip_direction"))
-            try:
-                dd = parse_dip_direction(raw_dd)
-            except (TypeError, ValueError):
-                problems.append(problem(f"dip_direction_deg must be degrees or a compass point, "
-                                        f"got {raw_dd!r}", field="dip_direction_deg", row=i))
-                dd = math.nan
-            if lines:
-                for arr in lines:
-                    traces["lines"].append(arr)
-                    traces["dip_deg"].append(dip)
-                    traces["dip_direction_deg"].append(dd)
-                    traces["name"].append(name)
-                    traces["feature"].append(i - 1)
+            _add_trace(traces, props, geom, gtype, i, name, problems)
         elif gtype in ("Point", None):
-            strike = _num(props, "strike_deg", i, problems)
-            dip = _num(props, "dip_deg", i, problems)
-            if math.isfinite(dip) and not 0.0 <= dip <= 90.0:
-                problems.append(problem(f"dip_deg must be between 0 and 90, got {dip}",
-                                        field="dip_deg", row=i))
-            xy = geom.get("coordinates") if gtype == "Point" else None
-            if xy is not None:
-                try:
-                    xy = [float(xy[0]), float(xy[1])]
-                    if not (math.isfinite(xy[0]) and math.isfinite(xy[1]) and abs(xy[1]) <= 90):
-                        raise ValueError
-                except (TypeError, ValueError, IndexError, KeyError):
-                    problems.append(problem("a point needs [lon, lat] with latitude in "
-                                            "[-90, 90]", field="geometry", row=i))
-                    xy = None
-            planes["strike_deg"].append(strike)
-            planes["dip_deg"].append(dip)
-            planes["name"].append(name)
-            planes["lon"].append(xy[0] if xy else math.nan)
-            planes["lat"].append(xy[1] if xy else math.nan)
-            planes["feature"].append(i - 1)
+            _add_plane(planes, props, geom if isinstance(geom, dict) else {}, gtype, i, name,
+                       problems)
         else:
             problems.append(problem(f"geometry type {gtype!r} is not a fault: use LineString, "
                                     "MultiLineString or Point", field="geometry", row=i))
-    if problems:
-        raise InputError(f"{field}: {len(problems)} problem(s) with the fault features", problems)
+    validate.raise_problems(problems, f"{field}: {len(problems)} problem(s) with the fault features")
     if not planes["strike_deg"] and not traces["lines"]:
         raise InputError(f"{field} holds no faults", [problem("no features", field=field)])
     return FaultInput(planes=planes, traces=traces)
 
 
-def faults_from_records(records: list[dict], field: str = "faults") -> FaultInput:
+def faults_from_records(records, field: str = "faults") -> FaultInput:
     """Strike/dip planes from table rows (dicts with ``strike_deg``, ``dip_deg`` and optionally
     ``name``, ``lon``, ``lat``; NaN cells count as empty), row numbers from 1."""
-    records = list(records)
     features = []
     for i, rec in enumerate(records):
-        geom = None
-        if "lon" in rec and "lat" in rec and np.isfinite([rec["lon"], rec["lat"]]).all():
-            geom = {"type": "Point", "coordinates": [rec["lon"], rec["lat"]]}
+        lon, lat = _cell(rec, "lon"), _cell(rec, "lat")
+        geom = None  # a plane without a place; half a place is an error the parser reports
+        if lon is not validate.MISSING or lat is not validate.MISSING:
+            geom = {"type": "Point", "coordinates": [_plain(lon), _plain(lat)]}
         props = {k: (None if isinstance(v, float) and math.isnan(v) else v)
                  for k, v in rec.items()}
         props.setdefault("name", f"plane {i + 1}")
         features.append({"type": "Feature", "properties": props, "geometry": geom})
     return faults_from_geojson({"type": "FeatureCollection", "features": features},
                                field=field)
+
+
+def _plain(value):
+    """A CSV cell as a JSON value (numpy scalars to Python, absent to null)."""
+    if value is validate.MISSING:
+        return None
+    return value.item() if hasattr(value, "item") else value

@@ -30,23 +30,14 @@ from stressmap.formats.faults import (
     faults_from_records,
     parse_dip_direction,
 )
+from stressmap.io.tables import read_csv_table
 
 __all__ = ["COMPASS_POINTS", "FaultInput", "faults_from_geojson", "parse_dip_direction",
            "read_fault_file"]
 
 
 def _read_csv(path: Path) -> FaultInput:
-    import pandas as pd
-
-    try:
-        frame = pd.read_csv(path, comment="#", skipinitialspace=True)
-    except (OSError, ValueError) as exc:
-        raise InputError(f"cannot read fault table {path}: {exc}",
-                         [problem(str(exc), field="faults")]) from exc
-    missing = [c for c in ("strike_deg", "dip_deg") if c not in frame.columns]
-    if missing:
-        raise InputError(f"fault table {path} lacks column(s) {', '.join(missing)}",
-                         [problem("required column missing", field=c) for c in missing])
+    frame = read_csv_table(path, ("strike_deg", "dip_deg"), what="fault table", field="faults")
     return faults_from_records(frame.to_dict("records"), field=str(path))
 
 

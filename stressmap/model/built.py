@@ -5,10 +5,6 @@ from __future__ import annotations
 import logging
 from dataclasses import dataclass, field
 
-import numpy as np
-
-from stressmap.constants import EARTH_RADIUS_KM
-
 log = logging.getLogger(__name__)
 
 
@@ -18,7 +14,6 @@ COMPONENTS = ("s_ee", "s_nn", "s_en")
 #: Largest grid :func:`predict_grid` evaluates in one call.
 MAX_GRID_POINTS = 4_000_000
 
-_KM_PER_DEG = np.pi * EARTH_RADIUS_KM / 180.0
 
 
 @dataclass(frozen=True)

@@ -17,8 +17,9 @@ import numpy as np
 
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
+from stressmap.geo.grid import regular_grid, wrap_lon
 from stressmap.geo.tensor import describe
-from stressmap.model.built import _KM_PER_DEG, MAX_GRID_POINTS, BuiltModel
+from stressmap.model.built import MAX_GRID_POINTS, BuiltModel
 
 log = logging.getLogger(__name__)
 
@@ -235,48 +236,16 @@ def predict_grid(model: BuiltModel, bbox, spacing_km, weights=None):
 
     ``bbox = (W, S, E, N)`` in degrees (W > E crosses the antimeridian; longitudes then run
     past 180 so that they stay increasing); ``spacing_km`` is the node spacing along a meridian,
-    and along the parallel through the middle of the box.
+    and along the parallel through the middle of the box. The grid and its rules (W == E
+    refused, -180..180 or 0..360 longitudes, at most ``MAX_GRID_POINTS`` nodes) are those of
+    :func:`stressmap.geo.grid.regular_grid`.
     """
     import xarray as xr
 
-    try:
-        w_, s_, e_, n_ = (float(v) for v in bbox)
-    except (TypeError, ValueError):
-        raise InputError("bbox must be four numbers W,S,E,N",
-                         [problem(f"got {bbox!r}", field="bbox")]) from None
-    probs = []
-    for name, v, lim in (("W", w_, 180.0), ("S", s_, 90.0), ("E", e_, 180.0), ("N", n_, 90.0)):
-        if not np.isfinite(v) or abs(v) > lim:
-            probs.append(problem(f"{name} must be a finite number in [-{lim:g}, {lim:g}], got {v!r}",
-                                 field="bbox"))
-    if not probs and s_ >= n_:
-        probs.append(problem(f"south ({s_:g}) must be less than north ({n_:g})", field="bbox"))
-    if not probs and w_ == e_:
-        probs.append(problem("west and east must differ", field="bbox"))
-    try:
-        spacing = float(spacing_km)
-    except (TypeError, ValueError):
-        spacing = float("nan")
-    if not np.isfinite(spacing) or spacing <= 0:
-        probs.append(problem(f"spacing_km must be a positive number, got {spacing_km!r}",
-                             field="spacing_km"))
-    if probs:
-        raise InputError("invalid grid request", probs)
-    if e_ < w_:
-        e_ += 360.0
-    dlat = spacing / _KM_PER_DEG
-    mid = np.radians(0.5 * (s_ + n_))
-    dlon = dlat / max(np.cos(mid), 1e-3)
-    n_lat = int(np.floor((n_ - s_) / dlat + 1e-9)) + 1
-    n_lon = int(np.floor((e_ - w_) / dlon + 1e-9)) + 1
-    if n_lat * n_lon > MAX_GRID_POINTS:
-        raise InputError(f"the grid would have {n_lat * n_lon} nodes (limit {MAX_GRID_POINTS})",
-                         [problem(f"{n_lat} x {n_lon} nodes; use a larger spacing_km or a smaller "
-                                  "bbox", field="spacing_km")])
-    lats = s_ + dlat * np.arange(n_lat)
-    lons = w_ + dlon * np.arange(n_lon)
+    lons, lats = regular_grid(bbox, spacing_km, max_nodes=MAX_GRID_POINTS)
+    n_lat, n_lon = lats.size, lons.size
     glon, glat = np.meshgrid(lons, lats)
-    qlon = (glon.ravel() + 180.0) % 360.0 - 180.0
+    qlon = wrap_lon(glon.ravel())
     inside, s = stress_at(model, qlon, glat.ravel(), weights)
     d = _derived(s)
     d["regime"] = np.where(inside, d["regime"], "").astype(object)
@@ -292,7 +261,7 @@ def predict_grid(model: BuiltModel, bbox, spacing_km, weights=None):
                                     "axis": "Y"}),
               "lon": ("lon", lons, {"standard_name": "longitude", "units": "degrees_east",
                                     "axis": "X"})}
-    attrs = _output_attrs(model, weights) | {"grid_spacing_km": spacing}
+    attrs = _output_attrs(model, weights) | {"grid_spacing_km": float(spacing_km)}
     return xr.Dataset(data, coords=coords, attrs=attrs)
 
 
