@@ -38,7 +38,10 @@ from stressmap.analyses.ensemble import (
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
 from stressmap.formats import export
-from stressmap.formats.indicators import indicators_from_csv_text, indicators_from_geojson
+from stressmap.formats.indicators import (
+    indicators_from_csv_text,
+    indicators_from_geojson,
+)
 from stressmap.model import plate_outline
 from stressmap.plot.ensemble import ensemble_png
 

@@ -23,6 +23,7 @@ import numpy as np
 from stressmap.constants import CAUTION, EARTH_RADIUS_KM
 from stressmap.errors import InputError, problem
 from stressmap.geo import circular
+from stressmap.geo.grid import regular_grid
 
 __all__ = [
     "STATUS",
@@ -35,7 +36,6 @@ __all__ = [
 #: Node status codes (``status`` variable): why a node has or lacks a mean.
 STATUS = {0: "ok", 1: "no indicators", 2: "too few indicators", 3: "too dispersed",
           4: "no defined mean"}
-_KM_PER_DEG = np.pi * EARTH_RADIUS_KM / 180.0
 
 
 def _xyz(lon, lat):
@@ -134,33 +134,10 @@ def smooth_at(node_lon, node_lat, lon, lat, shmax_deg, weight=None, *, radius_km
     }
 
 
-def _check_bbox(bbox):
-    try:
-        w, s, e, n = (float(v) for v in bbox)
-    except (TypeError, ValueError) as exc:
-        raise InputError("bbox must be four numbers W,S,E,N",
-                         [problem("must be four numbers: west, south, east, north", field="bbox")]) from exc
-    probs = []
-    if not all(np.isfinite([w, s, e, n])):
-        probs.append(problem("values must be finite", field="bbox"))
-    elif not (-90.0 <= s < n <= 90.0):
-        probs.append(problem(f"need -90 <= south < north <= 90, got south {s:g}, north {n:g}", field="bbox"))
-    elif not (-180.0 <= w <= 360.0 and -180.0 <= e <= 360.0) or w == e:
-        probs.append(problem(f"west and east must differ and lie in [-180, 360], got {w:g}, {e:g}",
-                             field="bbox"))
-    if probs:
-        raise InputError("invalid bbox", probs)
-    if e < w:  # crosses the antimeridian
-        e += 360.0
-    return w, s, e, n
-
-
 def grid_axes(bbox, spacing_km, max_nodes=1_000_000):
-    """Longitudes and latitudes (1-D, degrees) of a regular grid over ``bbox = (W, S, E, N)``.
-
-    The latitude step is ``spacing_km`` along a meridian; the longitude step gives the same
-    spacing along the parallel through the middle of the box. A box with W > E crosses the
-    antimeridian (longitudes then run past 180).
+    """Longitudes and latitudes (1-D, degrees) of the regular grid over ``bbox = (W, S, E, N)``:
+    the package's one grid, :func:`stressmap.geo.grid.regular_grid` (a box with W > E crosses the
+    antimeridian; longitudes then run past 180).
 
     Examples
     --------
@@ -168,21 +145,7 @@ def grid_axes(bbox, spacing_km, max_nodes=1_000_000):
     >>> lon.size, lat.size, float(lat[1] - lat[0]) == 55.5 / (np.pi * 6371.0 / 180.0)
     (3, 3, True)
     """
-    w, s, e, n = _check_bbox(bbox)
-    if not (np.isfinite(spacing_km) and spacing_km > 0):
-        raise InputError("spacing_km must be a positive number",
-                         [problem(f"must be > 0, got {spacing_km!r}", field="spacing_km")])
-    dlat = spacing_km / _KM_PER_DEG
-    mid = np.radians(0.5 * (s + n))
-    dlon = dlat / max(np.cos(mid), 1e-3)
-    nlat = int(np.floor((n - s) / dlat + 1e-9)) + 1
-    nlon = int(np.floor((e - w) / dlon + 1e-9)) + 1
-    if nlat * nlon > max_nodes:
-        raise InputError(
-            f"grid of {nlat} x {nlon} nodes exceeds the limit of {max_nodes}",
-            [problem(f"{nlat * nlon} nodes; use a larger spacing_km or a smaller bbox",
-                     field="spacing_km")])
-    return w + dlon * np.arange(nlon), s + dlat * np.arange(nlat)
+    return regular_grid(bbox, spacing_km, max_nodes)
 
 
 def observed_grid(indicators, bbox, radius_km, spacing_km=None, min_count=3,

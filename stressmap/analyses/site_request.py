@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from stressmap import validate
 from stressmap.analyses import faults as fl
 from stressmap.analyses import screening as sc
 from stressmap.errors import InputError, problem
@@ -126,51 +127,16 @@ def parse_plane_text(text: str, field_name: str = "--plane") -> tuple[float, flo
 
 
 def _number(doc, key, problems, *, lo=None, hi=None, lo_open=False, integer=False, where=None):
-    if key not in doc or doc[key] is None:
-        return None
-    value = doc[key]
-    name = f"{where}.{key}" if where else key
-    if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)):
-        problems.append(problem(f"must be a number, got {value!r}", field=name))
-        return None
-    value = float(value)
-    if not math.isfinite(value):
-        problems.append(problem("must be finite", field=name))
-        return None
-    if integer and value != int(value):
-        problems.append(problem(f"must be a whole number, got {value}", field=name))
-        return None
-    if lo is not None and (value <= lo if lo_open else value < lo):
-        problems.append(problem(f"must be {'>' if lo_open else '>='} {lo}, got {value}",
-                                field=name))
-        return None
-    if hi is not None and value > hi:
-        problems.append(problem(f"must be <= {hi}, got {value}", field=name))
-        return None
-    return int(value) if integer else value
+    """``doc[key]`` checked by :func:`stressmap.validate.number` (absent or null: None)."""
+    return validate.number(doc.get(key, validate.MISSING), f"{where}.{key}" if where else key,
+                           problems, name=key, low=lo, high=hi, low_inclusive=not lo_open,
+                           integer=integer, nullable=True)
 
 
 def _range(doc, key, problems, *, lo=None, hi=None, where="uncertainty"):
-    if key not in doc or doc[key] is None:
-        return None
-    value = doc[key]
-    name = f"{where}.{key}"
-    try:
-        a, b = (float(v) for v in value)
-        if isinstance(value, (str, bytes)) or not (math.isfinite(a) and math.isfinite(b)):
-            raise ValueError
-    except (TypeError, ValueError):
-        problems.append(problem(f"must be a pair [low, high] of numbers, got {value!r}",
-                                field=name))
-        return None
-    if a > b:
-        problems.append(problem(f"low {a} exceeds high {b}", field=name))
-        return None
-    if (lo is not None and a < lo) or (hi is not None and b > hi):
-        problems.append(problem(f"must lie within [{lo}, {hi}], got [{a}, {b}]", field=name))
-        return None
-    return (a, b)
-
+    """``doc[key]`` as a (low, high) pair by :func:`stressmap.validate.number_pair`."""
+    return validate.number_pair(doc.get(key, validate.MISSING), f"{where}.{key}", problems,
+                                name=key, low=lo, high=hi)
 
 
 def parse_request(doc: dict) -> ScreenRequest:
@@ -198,7 +164,7 @@ def parse_request(doc: dict) -> ScreenRequest:
     >>> parse_request({"site": [0, 0], "depth_km": -1})
     Traceback (most recent call last):
     ...
-    stressmap.errors.InputError: must be > 0.0, got -1.0
+    stressmap.errors.InputError: depth_km must be > 0, got -1
     """
     if not isinstance(doc, dict):
         raise InputError("the screening request must be a JSON object",

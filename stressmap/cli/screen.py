@@ -11,13 +11,13 @@ import json
 import math
 from pathlib import Path
 
+from stressmap import validate
 from stressmap.analyses.sitescreen import (
     parse_plane_text,
     parse_request,
     parse_site_text,
     screen,
 )
-from stressmap import validate
 from stressmap.cli.model import parse_weights
 from stressmap.errors import InputError, problem
 from stressmap.formats.screening import result_csv, result_geojson, result_json

@@ -10,8 +10,8 @@ import numpy as np
 from stressmap.analyses.ensemble.distributions import sample_weights
 from stressmap.analyses.ensemble.execution import ensemble_statistics
 from stressmap.analyses.ensemble.kernels import DEFAULT_PERCENTILES, STAT_VARIABLES
-from stressmap.constants import CAUTION, EARTH_RADIUS_KM
-from stressmap.errors import InputError, problem
+from stressmap.constants import CAUTION
+from stressmap.geo.grid import regular_grid, wrap_lon
 from stressmap.geo.tensor import REGIMES
 from stressmap.model import resolve_weights, unit_stress_at
 from stressmap.model.plate import parse_plate
@@ -22,13 +22,13 @@ __all__ = ["grid_coordinates", "ensemble_points", "ensemble_grid", "percentile_l
 _log = logging.getLogger(__name__)
 
 
-def grid_coordinates(bbox, spacing_km):
-    """1-D longitude and latitude vectors of a regular grid over ``bbox = (W, S, E, N)``.
+def grid_coordinates(bbox, spacing_km, max_nodes=None):
+    """1-D longitude and latitude vectors of the regular grid over ``bbox = (W, S, E, N)``.
 
-    The latitude step is ``spacing_km`` along a meridian (sphere of radius 6371 km); the longitude
-    step keeps ``spacing_km`` at the box's middle latitude (the grid of
-    :func:`stressmap.model.predict_grid`). ``E < W`` crosses the antimeridian; longitudes then run
-    past 180 so that they stay increasing (CF coordinates).
+    The package's one grid (:func:`stressmap.geo.grid.regular_grid`): latitude step
+    ``spacing_km`` along a meridian (sphere of radius 6371 km), longitude step keeping
+    ``spacing_km`` at the box's middle latitude; ``E < W`` crosses the antimeridian and
+    longitudes then run past 180 so that they stay increasing (CF coordinates).
 
     Examples
     --------
@@ -39,29 +39,7 @@ def grid_coordinates(bbox, spacing_km):
     >>> lon.round(3).tolist()
     [179.5, 180.0, 180.5]
     """
-
-    problems = []
-    try:
-        w, s, e, n = (float(v) for v in bbox)
-    except (TypeError, ValueError):
-        raise InputError("invalid bbox", [problem("need four numbers W,S,E,N", field="bbox")])
-    if not all(np.isfinite([w, s, e, n])) or not (-90 <= s < n <= 90) or abs(w) > 180 or abs(e) > 180:
-        problems.append(problem("need -180 <= W, E <= 180 and -90 <= S < N <= 90", field="bbox"))
-    try:
-        spacing = float(spacing_km)
-    except (TypeError, ValueError):
-        spacing = float("nan")
-    if not (np.isfinite(spacing) and spacing > 0):
-        problems.append(problem("must be a positive number of km", field="spacing_km"))
-    if problems:
-        raise InputError("invalid grid", problems)
-    if e <= w:
-        e += 360.0
-    dlat = np.degrees(spacing / EARTH_RADIUS_KM)
-    dlon = dlat / max(np.cos(np.radians(0.5 * (s + n))), 1e-3)
-    lat = s + dlat * np.arange(int(np.floor((n - s) / dlat + 1e-9)) + 1)
-    lon = w + dlon * np.arange(int(np.floor((e - w) / dlon + 1e-9)) + 1)
-    return lon, lat
+    return regular_grid(bbox, spacing_km, max_nodes)
 
 
 def _group_references(model) -> dict:
@@ -170,8 +148,8 @@ def ensemble_grid(model, bbox, spacing_km, members=1000, distributions=None, see
     """
     lon1, lat1 = grid_coordinates(bbox, spacing_km)
     lon2, lat2 = np.meshgrid(lon1, lat1)
-    pts = ensemble_points(model, np.mod(lon2.ravel() + 180.0, 360.0) - 180.0, lat2.ravel(), members, distributions, seed,
-                          percentiles, weights, progress, **kwargs)
+    pts = ensemble_points(model, wrap_lon(lon2.ravel()), lat2.ravel(), members, distributions,
+                          seed, percentiles, weights, progress, **kwargs)
     shape = lat2.shape
     ds = pts.drop_vars(["lon", "lat"])
     import xarray as xr
