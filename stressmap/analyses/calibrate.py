@@ -583,27 +583,9 @@ def calibrate_arrays(unit, observed_deg, kappa=None, *, groups=None, default_wei
     against it (:func:`stressmap.geo.circular.random_misfit_significance`; it ignores the freedom of the
     fit, which the Monte Carlo ``p_value`` accounts for).
     """
-    unit = np.asarray(unit, dtype=float)
-    d, e = axial_terms(unit)
+    d, e, obs, kappa, groups, w0, b, ref = _prepared_inputs(
+        unit, observed_deg, kappa, groups, default_weights, bounds, reference, confidence)
     g, n = d.shape
-    groups = tuple(groups) if groups is not None else tuple(f"g{i}" for i in range(g))
-    if len(groups) != g:
-        raise ValueError("groups and unit disagree")
-    obs = np.asarray(observed_deg, dtype=float)
-    kappa = np.ones(n) if kappa is None else np.asarray(kappa, dtype=float)
-    _check_inputs(unit, obs, kappa)
-    if not 0.0 < confidence < 1.0:
-        raise InputError("confidence must lie strictly between 0 and 1",
-                         [problem(f"got {confidence}", field="confidence")])
-    w0 = np.ones(g) if default_weights is None else np.asarray(default_weights, dtype=float)
-    b = np.asarray(bounds, dtype=float) if isinstance(bounds, np.ndarray) else \
-        resolve_bounds(groups, bounds)
-    ref = _reference_index(d, e, groups, reference)
-    n_free = g - 1
-    if kappa.sum() <= 0 or np.count_nonzero(kappa) < max(n_free, 1):
-        raise InputError("too few usable indicators for calibration",
-                         [problem(f"{np.count_nonzero(kappa)} indicators with positive weight; "
-                                  f"{n_free} free weights need at least as many", field="indicators")])
     report = progress or (lambda fraction, message: None)
     rng = np.random.default_rng(seed)
     prob = _problem(d, e, obs, b, ref, w0[ref])
@@ -639,6 +621,34 @@ def calibrate_arrays(unit, observed_deg, kappa=None, *, groups=None, default_wei
         settings={"n_starts": n_starts, "n_bootstrap": n_bootstrap, "n_random": n_random,
                   "seed": seed},
     )
+
+
+def _prepared_inputs(unit, observed_deg, kappa, groups, default_weights, bounds, reference,
+                     confidence):
+    """Checked inputs of :func:`calibrate_arrays`: axial terms, observations, misfit weights,
+    group names, default weights, bounds (G, 2) and the reference group's index."""
+    unit = np.asarray(unit, dtype=float)
+    d, e = axial_terms(unit)
+    g, n = d.shape
+    groups = tuple(groups) if groups is not None else tuple(f"g{i}" for i in range(g))
+    if len(groups) != g:
+        raise ValueError("groups and unit disagree")
+    obs = np.asarray(observed_deg, dtype=float)
+    kappa = np.ones(n) if kappa is None else np.asarray(kappa, dtype=float)
+    _check_inputs(unit, obs, kappa)
+    if not 0.0 < confidence < 1.0:
+        raise InputError("confidence must lie strictly between 0 and 1",
+                         [problem(f"got {confidence}", field="confidence")])
+    w0 = np.ones(g) if default_weights is None else np.asarray(default_weights, dtype=float)
+    b = np.asarray(bounds, dtype=float) if isinstance(bounds, np.ndarray) else \
+        resolve_bounds(groups, bounds)
+    ref = _reference_index(d, e, groups, reference)
+    n_free = g - 1
+    if kappa.sum() <= 0 or np.count_nonzero(kappa) < max(n_free, 1):
+        raise InputError("too few usable indicators for calibration",
+                         [problem(f"{np.count_nonzero(kappa)} indicators with positive weight; "
+                                  f"{n_free} free weights need at least as many", field="indicators")])
+    return d, e, obs, kappa, groups, w0, b, ref
 
 
 def _reference_index(d, e, groups, reference) -> int:
