@@ -50,6 +50,7 @@ __all__ = [
     "complete_magnitudes",
     "regime_from_magnitudes",
     "frictional_ratio",
+    "shape_ratio_of",
     "principal_tensor_ned",
 ]
 
@@ -442,6 +443,24 @@ def regime_from_magnitudes(shmax_mpa, shmin_mpa, sv_mpa):
     shmax, shmin, sv = np.broadcast_arrays(*(np.asarray(a, dtype=float)
                                              for a in (shmax_mpa, shmin_mpa, sv_mpa)))
     return np.where(shmax < sv, 0, np.where(shmin > sv, 2, 1)).astype(np.int8)
+
+
+def shape_ratio_of(shmax_mpa, shmin_mpa, sv_mpa):
+    """Shape ratio phi = (S2 - S3)/(S1 - S3) of the three principal magnitudes (NaN when
+    S1 == S3, where it is undefined).
+
+    Examples
+    --------
+    >>> shape_ratio_of([84.0, 60.0], [48.0, 40.0], [69.7, 70.0]).round(4).tolist()
+    [0.6028, 0.6667]
+    >>> bool(np.isnan(shape_ratio_of(50.0, 50.0, 50.0)))
+    True
+    """
+    s = np.sort(np.stack(np.broadcast_arrays(*(np.asarray(a, dtype=float)
+                                               for a in (shmax_mpa, shmin_mpa, sv_mpa)))), axis=0)
+    span = s[2] - s[0]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(span > 0, (s[1] - s[0]) / np.where(span > 0, span, 1.0), np.nan)
 
 
 def frictional_ratio(shmax_mpa, shmin_mpa, sv_mpa, pp_mpa):

@@ -220,6 +220,7 @@ def screen(req: ScreenRequest, model=None, model_info: dict | None = None) -> Sc
     if code < 0:  # regime only from the measured magnitudes
         code = int(sc.regime_from_magnitudes(req.shmax_mpa, req.shmin_mpa, sv))
     code, shmax, shmin = _site_magnitudes(req, code, phi, sv, pp, sources, notes)
+    phi = _reported_shape_ratio(phi, shmax, shmin, sv, sources, notes)
     mu = req.friction
     bounds = {k: float(v) for k, v in sc.regime_bounds(sv, pp, mu, code).items()}
     stress = sc.principal_tensor_ned(shmax, shmin, sv, az)
@@ -256,6 +257,20 @@ def screen(req: ScreenRequest, model=None, model_info: dict | None = None) -> Sc
     if result.samples is not None and "margin_mpa" in result.samples:
         result.samples["margin_mpa"] = result.samples["margin_mpa"][:, order]
     return result
+
+
+def _reported_shape_ratio(phi: float, shmax: float, shmin: float, sv: float, sources: dict,
+                          notes: list) -> float:
+    """The shape ratio of the magnitudes themselves. A measured magnitude (or the strike-slip
+    frictional limit with one measured) can fix all three, and then the requested ratio cannot
+    hold; the reported one is always (S2 - S3)/(S1 - S3) of the reported magnitudes."""
+    implied = float(sc.shape_ratio_of(shmax, shmin, sv))
+    if not math.isfinite(implied) or abs(implied - phi) <= 1e-9:
+        return float(phi)
+    notes.append(f"shape ratio {implied:.2f} follows from the magnitudes (not the "
+                 f"{sources.get('shape_ratio', 'given')} value {phi:.2f})")
+    sources["shape_ratio"] = "the magnitudes"
+    return implied
 
 
 def _orientation(req: ScreenRequest, model, sources: dict, notes: list):

@@ -123,6 +123,8 @@ def sample_screening(result, model, rho_mean: float, code: int, phi: float, az: 
     mu, sv, pp = _draw_inputs(req, result.site, rho_mean, rng, info, result.notes)
     azs, codes, phis = _draw_orientation(req, model, rng, code, phi, az, info, result.notes)
     shmax, shmin = sc.complete_magnitudes(sv, pp, mu, codes, phis, req.shmax_mpa, req.shmin_mpa)
+    implied = sc.shape_ratio_of(shmax, shmin, sv)  # what the sampled magnitudes hold
+    phis = np.where(np.isfinite(implied), implied, phis)
     samples = {"sv_mpa": sv, "pp_mpa": pp, "friction": mu, "shmax_azimuth_deg": azs,
                "regime_code": codes, "shape_ratio": phis, "shmax_mpa": shmax, "shmin_mpa": shmin}
     pct = [5, 50, 95]

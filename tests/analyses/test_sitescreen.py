@@ -140,3 +140,29 @@ def test_sampling_in_chunks_equals_one_pass(monkeypatch):
     whole = run(**body)
     monkeypatch.setattr(ss, "_CHUNK_PLANE_SAMPLES", 7)   # 2 samples per chunk
     assert run(**body)["planes"] == whole["planes"]
+
+
+# -- every reported quantity agrees with the reported magnitudes -------------------------------
+
+@pytest.mark.parametrize("kw", [
+    {"regime": "strike-slip", "shmin_mpa": 48.0, "pore_pressure_mpa": 31.0},
+    {"regime": "normal", "shmax_mpa": 60.0},
+    {"regime": "reverse", "shmin_mpa": 80.0},
+    {"shmax_mpa": 100.0, "shmin_mpa": 50.0},
+    {"regime": "strike-slip", "shape_ratio": 0.3},
+])
+def test_reported_shape_ratio_follows_the_reported_magnitudes(kw):
+    # The shape ratio's definition, phi = (S2 - S3) / (S1 - S3) (Angelier 1979, from memory),
+    # applied to the three magnitudes the screening itself reports.
+    doc = run(planes=["040/60"], **kw)
+    s3, s2, s1 = sorted((doc["shmax_mpa"], doc["shmin_mpa"], doc["sv_mpa"]))
+    assert_allclose(doc["shape_ratio"], (s2 - s3) / (s1 - s3), atol=1e-9)
+
+
+def test_sampled_shape_ratios_follow_the_sampled_magnitudes():
+    req = parse_request({**SITE, "regime": "strike-slip", "shmin_mpa": 48.0,
+                         "pore_pressure_mpa": 31.0, "planes": ["040/60"],
+                         "uncertainty": {"friction_range": [0.5, 0.8], "samples": 200}})
+    s = screen(req).samples
+    mags = np.sort(np.stack([s["shmax_mpa"], s["shmin_mpa"], s["sv_mpa"]]), axis=0)
+    assert_allclose(s["shape_ratio"], (mags[1] - mags[0]) / (mags[2] - mags[0]), atol=1e-9)
