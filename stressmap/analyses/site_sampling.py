@@ -15,7 +15,11 @@ import numpy as np
 from stressmap.analyses import faults as fl
 from stressmap.analyses import screening as sc
 from stressmap.analyses.compare import compare
-from stressmap.analyses.ensemble import ensemble_points
+from stressmap.analyses.ensemble import (
+    DEFAULT_WEIGHT_RANGE,
+    default_distributions,
+    ensemble_points,
+)
 from stressmap.analyses.site_request import DEFAULTS
 from stressmap.constants import EARTH_RADIUS_M
 from stressmap.errors import InputError, OutsidePlateError, problem
@@ -212,9 +216,9 @@ def _draw_orientation(req, model, rng, code: int, phi: float, az: float, info: d
         info["azimuth_sigma_deg"] = sigma
         return azs, codes, phis
     if not dists and not model_dists:
-        dists = {g: {"distribution": "uniform", "low": 0.5, "high": 1.5} for g in model.groups}
+        dists = default_distributions(model.groups)
         notes.append("ensemble: no force distributions given; every load group's weight "
-                     "drawn uniformly from 0.5 to 1.5 (default)")
+                     "drawn uniformly from {:g} to {:g} (default)".format(*DEFAULT_WEIGHT_RANGE))
     members = req.ensemble_members or DEFAULTS["ensemble_default_members"]
     ens = ensemble_orientation(model, req.lon, req.lat, members, req.seed, dists)
     pick = rng.integers(0, ens["shmax_azimuth_deg"].size, n)

@@ -248,7 +248,7 @@ def _cmd_ensemble(args) -> int:
         bar.close()
     meta = {"caution": CAUTION, "model_name": model.summary.get("name", ""),
             "build_time": model.summary.get("build_time", ""), "members": args.members,
-            "seed": seed, "distributions": json.dumps(distributions, sort_keys=True)}
+            "seed": seed, "distributions": ds.attrs.get("distributions", "{}")}
     if fmt == "nc":
         out.write_bytes(export.netcdf_bytes(ds, meta))
     elif fmt == "png":
@@ -264,6 +264,8 @@ def _cmd_ensemble(args) -> int:
     where = (f"{ds.sizes['point']} points" if "point" in ds.dims
              else f"a {ds.sizes['lat']} x {ds.sizes['lon']} grid")
     print(f"ensemble of {args.members} members over {where} ({n_in} inside the plate) -> {out}")
+    if ds.attrs.get("distributions_source", "given") != "given":
+        print(f"note: distributions: {ds.attrs['distributions_source']}")
     print(f"note: {CAUTION}")
     return 0
 

@@ -20,7 +20,9 @@ Modules: :mod:`.distributions` (weight distributions and member draws), :mod:`.k
 statistics of a chunk), :mod:`.execution` (chunking on threads or Dask), :mod:`.fields` (a built
 model's ensemble at points or on a grid). The PNG picture is :func:`stressmap.plot.ensemble.ensemble_png`.
 
-Weights are drawn per load group from ``uniform``, ``log-uniform`` or ``normal`` (optionally
+With no distributions given (and none in the model document), every load group's weight is drawn
+uniformly from 0.5 to 1.5 and the result's ``distributions_source`` says so; an ensemble in which
+nothing varies is refused. Weights are drawn per load group from ``uniform``, ``log-uniform`` or ``normal`` (optionally
 truncated) distributions with a fixed seed. A distribution may be given for a physical parameter
 that maps onto the group's weight: ``pull_fraction`` (slab pull is proportional to it),
 ``slab_age_myr`` (weight = ratio of :func:`stressmap.physics.forces.slab_pull_n_per_m` at the drawn and the
@@ -28,15 +30,19 @@ reference age), or ``scale`` / ``weight`` (the weight itself).
 """
 
 from stressmap.analyses.ensemble.distributions import (
+    DEFAULT_WEIGHT_RANGE,
     DISTRIBUTIONS,
     PARAMETERS,
     parameter_to_weight,
     sample_parameter,
+    default_distributions,
     sample_weights,
     validate_distributions,
+    varies,
 )
 from stressmap.analyses.ensemble.execution import ensemble_statistics
 from stressmap.analyses.ensemble.fields import (
+    chosen_distributions,
     ensemble_grid,
     ensemble_points,
     flatten_percentiles,
@@ -53,6 +59,10 @@ from stressmap.analyses.ensemble.kernels import (
 )
 
 __all__ = [
+    "DEFAULT_WEIGHT_RANGE",
+    "chosen_distributions",
+    "default_distributions",
+    "varies",
     "DISTRIBUTIONS",
     "PARAMETERS",
     "DEFAULT_PERCENTILES",

@@ -16,12 +16,43 @@ import numpy as np
 from stressmap.errors import InputError, problem
 from stressmap.physics.forces import slab_pull_n_per_m
 
-__all__ = ["DISTRIBUTIONS", "PARAMETERS", "validate_distributions", "sample_parameter",
-           "parameter_to_weight", "sample_weights"]
+__all__ = ["DEFAULT_WEIGHT_RANGE", "DISTRIBUTIONS", "PARAMETERS", "default_distributions",
+           "validate_distributions", "sample_parameter", "parameter_to_weight", "sample_weights",
+           "varies"]
 
 DISTRIBUTIONS = ("uniform", "log-uniform", "normal")
 PARAMETERS = ("weight", "scale", "pull_fraction", "slab_age_myr")
 
+#: Range of every load group's weight when an ensemble is asked for without distributions: the
+#: forces of the document within -50 % .. +50 %, drawn uniformly (our own default).
+DEFAULT_WEIGHT_RANGE = (0.5, 1.5)
+
+
+def default_distributions(groups) -> dict:
+    """Every group's weight uniform over :data:`DEFAULT_WEIGHT_RANGE`.
+
+    Examples
+    --------
+    >>> default_distributions(["ridge"])
+    {'ridge': {'distribution': 'uniform', 'low': 0.5, 'high': 1.5}}
+    """
+    lo, hi = DEFAULT_WEIGHT_RANGE
+    return {g: {"distribution": "uniform", "low": lo, "high": hi} for g in groups}
+
+
+def varies(spec: dict) -> bool:
+    """Whether a validated spec draws more than one value.
+
+    Examples
+    --------
+    >>> varies({"distribution": "uniform", "low": 1.0, "high": 1.0})
+    False
+    >>> varies({"distribution": "normal", "mean": 1.0, "std": 0.2, "low": 0.0, "high": 2.0})
+    True
+    """
+    if spec["distribution"] == "normal":
+        return spec["std"] > 0
+    return spec["high"] > spec["low"]
 
 def validate_distributions(distributions, groups) -> dict:
     """Check distribution specs ``group -> spec`` and return them normalised.

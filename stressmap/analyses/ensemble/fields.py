@@ -7,16 +7,23 @@ import logging
 
 import numpy as np
 
-from stressmap.analyses.ensemble.distributions import sample_weights
+from stressmap.analyses.ensemble.distributions import (
+    DEFAULT_WEIGHT_RANGE,
+    default_distributions,
+    sample_weights,
+    validate_distributions,
+    varies,
+)
 from stressmap.analyses.ensemble.execution import ensemble_statistics
 from stressmap.analyses.ensemble.kernels import DEFAULT_PERCENTILES, STAT_VARIABLES
 from stressmap.constants import CAUTION
+from stressmap.errors import InputError, problem
 from stressmap.geo.grid import regular_grid, wrap_lon
 from stressmap.geo.tensor import REGIMES
 from stressmap.model import resolve_weights, unit_stress_at
 from stressmap.model.plate import parse_plate
 
-__all__ = ["grid_coordinates", "ensemble_points", "ensemble_grid", "percentile_label",
+__all__ = ["chosen_distributions", "grid_coordinates", "ensemble_points", "ensemble_grid", "percentile_label",
            "flatten_percentiles"]
 
 _log = logging.getLogger(__name__)
@@ -61,6 +68,31 @@ def _group_references(model) -> dict:
             if key in props and props[key] is not None:
                 values.setdefault(group, {}).setdefault(key, []).append(float(props[key]))
     return {g: {k: float(np.mean(v)) for k, v in d.items()} for g, d in values.items()}
+
+
+def chosen_distributions(model, distributions) -> tuple[dict, str]:
+    """The distributions an ensemble of ``model`` draws from, and where they came from.
+
+    The given ones; else the model document's ``ensemble.distributions``; else every load group's
+    weight uniform over :data:`~stressmap.analyses.ensemble.distributions.DEFAULT_WEIGHT_RANGE`.
+    An ensemble in which nothing varies is refused: every member would be the same.
+    """
+    given = dict(distributions or {})
+    source = "given"
+    if not given:
+        doc = ((getattr(model, "definition", None) or {}).get("ensemble") or {})
+        given, source = dict(doc.get("distributions") or {}), "model document"
+    if not given:
+        lo, hi = DEFAULT_WEIGHT_RANGE
+        return (default_distributions(model.groups),
+                f"default: no distributions were given, so every load group's weight is drawn "
+                f"uniformly from {lo:g} to {hi:g}")
+    specs = validate_distributions(given, model.groups)
+    if not any(varies(spec) for spec in specs.values()):
+        raise InputError("nothing varies in this ensemble: every member would be the same",
+                         [problem("give at least one distribution with low < high (or std > 0)",
+                                  field="distributions")])
+    return given, source
 
 
 def _weights_for(model, members, distributions, seed):
@@ -112,7 +144,9 @@ def ensemble_points(model, lon, lat, members=1000, distributions=None, seed=0,
 
     lon = np.atleast_1d(np.asarray(lon, dtype=float))
     lat = np.atleast_1d(np.asarray(lat, dtype=float))
+    source = "member weights given"
     if weights is None:
+        distributions, source = chosen_distributions(model, distributions)
         weights = _weights_for(model, members, distributions, seed)
     weights = np.asarray(weights, dtype=float)
     inside, unit = unit_stress_at(model, lon, lat)
@@ -135,7 +169,8 @@ def ensemble_points(model, lon, lat, members=1000, distributions=None, seed=0,
     data["member_weight"] = (("member", "group"), weights)
     ds = xr.Dataset(data, coords={"percentile": stats["percentiles"],
                                   "group": list(model.groups)},
-                    attrs=_attrs(weights.shape[0], seed, distributions or {}))
+                    attrs=dict(_attrs(weights.shape[0], seed, distributions or {}),
+                               distributions_source=source))
     return ds
 
 
