@@ -240,9 +240,12 @@ def _stress_fields(doc: dict, problems: list) -> dict:
             problems.append(problem("must be an object with top_km, density_kg_m3 and optional "
                                     "gradient_kg_m3_per_km lists", field="density_profile"))
         else:
+            grad = prof.get("gradient_kg_m3_per_km")
+            if isinstance(grad, (list, tuple)):  # optional per layer: null means no gradient
+                grad = [0.0 if g is None else g for g in grad]
             try:
                 density = sc.density_profile(prof.get("top_km", 0.0), prof["density_kg_m3"],
-                                             prof.get("gradient_kg_m3_per_km", 0.0),
+                                             0.0 if grad is None else grad,
                                              field="density_profile")
             except InputError as exc:
                 problems.extend(exc.problems)

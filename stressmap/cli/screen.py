@@ -60,8 +60,11 @@ def read_density_profile(path) -> dict:
     problems: list = []
     for col in ("top_km", "density_kg_m3", "gradient_kg_m3_per_km"):
         if col in frame.columns:
-            out[col] = [validate.number(validate.cell(v), col, problems, row=i + 1, text=True, required=True)
-                        for i, v in enumerate(frame[col].tolist())]
+            optional = col == "gradient_kg_m3_per_km"  # an empty cell: no gradient in that layer
+            values = [validate.number(validate.cell(v), col, problems, row=i + 1, text=True,
+                                      required=not optional)
+                      for i, v in enumerate(frame[col].tolist())]
+            out[col] = [0.0 if optional and v is None else v for v in values]
     validate.raise_problems(problems, f"density profile {path}: {len(problems)} bad cell(s)")
     return out
 

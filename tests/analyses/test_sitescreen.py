@@ -166,3 +166,12 @@ def test_sampled_shape_ratios_follow_the_sampled_magnitudes():
     s = screen(req).samples
     mags = np.sort(np.stack([s["shmax_mpa"], s["shmin_mpa"], s["sv_mpa"]]), axis=0)
     assert_allclose(s["shape_ratio"], (mags[1] - mags[0]) / (mags[2] - mags[0]), atol=1e-9)
+
+
+def test_density_profile_gradient_is_optional_per_layer():
+    # null (JSON) for a layer's gradient means no gradient there, like an empty CSV cell
+    doc = run(regime="normal", density_profile={"top_km": [0.0, 1.0],
+                                                 "density_kg_m3": [2200.0, 2400.0],
+                                                 "gradient_kg_m3_per_km": [None, 100.0]})
+    assert_allclose(doc["sv_mpa"], 9.81e3 * (2200 * 1 + 2400 * 2 + 100 * 4 / 2) / 1e6, rtol=1e-12)
+    assert doc["density_profile"]["gradient_kg_m3_per_km"] == [0.0, 100.0]

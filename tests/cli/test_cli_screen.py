@@ -164,3 +164,19 @@ def test_site_outside_the_model_plate(capsys, coarse_demo_dir):
     assert main(["screen", "--site=150,60", "--depth-km", "3", "--model",
                  str(coarse_demo_dir)]) == 2
     assert "outside" in capsys.readouterr().err
+
+
+def test_density_profile_with_the_optional_gradient_left_empty(capsys, tmp_path):
+    # README: `gradient_kg_m3_per_km` is optional per layer; an empty cell means no gradient
+    # (it was refused as "not a number").
+    prof = tmp_path / "layers.csv"
+    prof.write_text("top_km,density_kg_m3,gradient_kg_m3_per_km\n0,2200,\n1,2400,100\n")
+    doc = run_json(capsys, *ORIENT, "--density-profile", str(prof), "--plane", "040/60")
+    # Sv = g (2200 * 1 km + 2400 * 2 km + 100 * 2^2 / 2) -- the analytic integral of the layers
+    assert_allclose(doc["sv_mpa"], 9.81 * (2200 * 1e3 + 2400 * 2e3 + 100 * 4 / 2 * 1e3) / 1e6,
+                    rtol=1e-12)
+    assert doc["density_profile"]["gradient_kg_m3_per_km"][0] == 0.0
+    bad = tmp_path / "bad.csv"
+    bad.write_text("top_km,density_kg_m3,gradient_kg_m3_per_km\n0,2200,x\n")
+    assert main([*BASE, *ORIENT, "--density-profile", str(bad)]) == 2
+    assert "gradient_kg_m3_per_km" in capsys.readouterr().err
