@@ -124,9 +124,13 @@ def _collect_planes(req: ScreenRequest, notes: list) -> dict:
         if odd:
             notes.append(f"{odd} trace segment(s) run within {90 - limit:.0f} degrees of their "
                          "fault's dip direction; each dips toward the nearer side")
-        if np.isnan(dd_in).any():
-            notes.append("traces without dip_direction_deg dip to the right of their digitised "
-                         "direction (right-hand rule)")
+        no_dd = np.flatnonzero(np.isnan(tr_dd) & (np.asarray(tr["dip_deg"], dtype=float) < 90))
+        for i in no_dd[:20]:  # each fault named with the direction it was given, never silently
+            first = np.flatnonzero(seg_part == i)
+            if first.size:
+                notes.append(f"{tr['name'][i]}: no dip_direction_deg; dips to the right of its "
+                             f"digitised direction (right-hand rule), toward "
+                             f"{np.mod(s[first[0]] + 90.0, 360.0):.0f} deg")
         first = np.r_[True, seg_part[1:] != seg_part[:-1]]
         seg_no = np.arange(seg_part.size) - np.maximum.accumulate(
             np.where(first, np.arange(seg_part.size), 0))

@@ -24,7 +24,7 @@ import math
 from stressmap import validate
 from stressmap.errors import InputError, problem
 
-__all__ = ["COMPASS_POINTS", "FaultInput", "faults_from_geojson", "faults_from_records",
+__all__ = ["COMPASS_POINTS", "KNOWN_PROPERTIES", "FaultInput", "restore_property_names", "faults_from_geojson", "faults_from_records",
            "parse_dip_direction"]
 
 #: 16-point compass names and their azimuths in degrees.
@@ -62,6 +62,30 @@ class FaultInput(dict):
     features; ``traces`` -> dict(lines (list of (k, 2) arrays), dip_deg, dip_direction_deg, name,
     feature); ``feature`` is the 0-based feature number in the collection.
     """
+
+
+#: Property names a fault reader knows, and the 10-character stems a shapefile (dBASE) cuts them
+#: to: a field written as ``dip_direction_deg`` comes back as ``dip_direct``.
+KNOWN_PROPERTIES = ("name", "id", "strike_deg", "dip_deg", "dip_direction_deg", "dip_direction")
+_DBF_NAME_LENGTH = 10
+_TRUNCATED = {k[:_DBF_NAME_LENGTH]: k for k in reversed(KNOWN_PROPERTIES)
+              if len(k) > _DBF_NAME_LENGTH}
+
+
+def restore_property_names(props: dict) -> dict:
+    """Properties with names matched case-insensitively and shapefile-truncated names restored.
+
+    Examples
+    --------
+    >>> restore_property_names({"DIP_DEG": 60, "dip_direct": "NE", "Name": "A"})
+    {'dip_deg': 60, 'dip_direction_deg': 'NE', 'name': 'A'}
+    """
+    out = {}
+    for key, value in props.items():
+        low = str(key).strip().lower()
+        full = _TRUNCATED.get(low, low) if low not in KNOWN_PROPERTIES else low
+        out.setdefault(full, value)
+    return out
 
 
 def _cell(props: dict, key: str, *aliases: str):
@@ -179,6 +203,8 @@ def faults_from_geojson(collection: dict, field: str = "faults") -> FaultInput:
             problems.append(problem("feature is not an object", field=field, row=i))
             continue
         props = feat.get("properties") or {}
+        if isinstance(props, dict):
+            props = restore_property_names(props)
         geom = feat.get("geometry") or {}
         if not isinstance(props, dict):
             problems.append(problem("properties must be an object", field="properties", row=i))
