@@ -14,12 +14,13 @@ __all__ = ["observed_geojson", "observed_netcdf_bytes"]
 def observed_geojson(ds, meta: dict | None = None, with_empty: bool = False) -> dict:
     """Grid nodes as GeoJSON Point features (nodes without indicators left out unless ``with_empty``).
 
-    Properties: ``shmax_azimuth_deg`` (null where rejected), ``count``, ``dispersion_deg``,
-    ``mean_resultant_length``, ``status`` (words). Top-level members: ``caution`` and the
+    Properties: ``shmax_azimuth_deg`` (null where rejected), ``count``, ``effective_count``,
+    ``dispersion_deg``, ``halfwidth_deg``, ``mean_resultant_length``, ``status`` (words). Top-level members: ``caution`` and the
     smoothing parameters, plus ``meta``.
     """
     lon2, lat2 = np.meshgrid(ds["lon"].values, ds["lat"].values)
-    flat = {k: ds[k].values.ravel() for k in ("shmax_azimuth_deg", "count", "dispersion_deg",
+    flat = {k: ds[k].values.ravel() for k in ("shmax_azimuth_deg", "count", "effective_count",
+                                                "dispersion_deg", "halfwidth_deg",
                                                 "mean_resultant_length", "status")}
     idx = np.arange(lon2.size) if with_empty else np.flatnonzero(flat["count"] > 0)
 
@@ -35,7 +36,9 @@ def observed_geojson(ds, meta: dict | None = None, with_empty: bool = False) -> 
             "properties": {
                 "shmax_azimuth_deg": num(flat["shmax_azimuth_deg"][i]),
                 "count": int(flat["count"][i]),
+                "effective_count": num(flat["effective_count"][i]),
                 "dispersion_deg": num(flat["dispersion_deg"][i]),
+                "halfwidth_deg": num(flat["halfwidth_deg"][i]),
                 "mean_resultant_length": num(flat["mean_resultant_length"][i]),
                 "status": STATUS[int(flat["status"][i])],
             },
@@ -43,7 +46,7 @@ def observed_geojson(ds, meta: dict | None = None, with_empty: bool = False) -> 
         for i in idx
     ]
     out = {"type": "FeatureCollection", "caution": CAUTION}
-    out.update({k: ds.attrs[k] for k in ("radius_km", "spacing_km", "min_count", "max_dispersion_deg")
+    out.update({k: ds.attrs[k] for k in ("radius_km", "spacing_km", "min_count", "max_halfwidth_deg")
                 if k in ds.attrs})
     out.update(meta or {})
     out["features"] = feats
