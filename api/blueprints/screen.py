@@ -20,6 +20,7 @@ from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
 from stressmap.formats.screening import parse_request_json as parse_request
 from stressmap.formats.screening import result_csv, result_geojson, result_json
+from stressmap.plot import margins as plot_margins
 from stressmap.plot import screening as plot_screening
 
 __all__ = ["bp", "FORMATS", "PICTURES", "MAX_PLANE_SAMPLES"]
@@ -27,7 +28,8 @@ __all__ = ["bp", "FORMATS", "PICTURES", "MAX_PLANE_SAMPLES"]
 bp = Blueprint("screen", __name__)
 
 FORMATS = ("json", "geojson", "csv", "png")
-PICTURES = {"mohr": "mohr_png", "polygon": "polygon_png", "map": "fault_map_png"}
+PICTURES = {"mohr": "mohr_png", "polygon": "polygon_png", "map": "fault_map_png",
+            "margins": "margin_curves_png"}
 #: Upper bound of planes x samples evaluated in one request (memory and time).
 MAX_PLANE_SAMPLES = 5_000_000
 
@@ -52,7 +54,8 @@ def _run(req, model, model_info, fmt, picture):
     if fmt == "csv":
         return "csv", result_csv(result)
 
-    return "png", getattr(plot_screening, PICTURES[picture])(result)
+    pictures = plot_margins if picture == "margins" else plot_screening
+    return "png", getattr(pictures, PICTURES[picture])(result)
 
 
 @bp.post("/screen")

@@ -51,6 +51,7 @@ __all__ = [
     "regime_from_magnitudes",
     "frictional_ratio",
     "shape_ratio_of",
+    "regime_fields",
     "principal_tensor_ned",
 ]
 
@@ -354,6 +355,29 @@ def stress_polygon(sv_mpa, pp_mpa, mu):
     sv, floor, ceiling = np.broadcast_arrays(sv, floor, ceiling)
     corners = [(floor, floor), (ceiling, ceiling), (sv, ceiling), (floor, sv)]
     return np.stack([np.stack(c, axis=-1) for c in corners], axis=-2)
+
+
+def regime_fields(sv_mpa, pp_mpa, mu) -> dict:
+    """The stress polygon split by Anderson regime: ``regime -> (3, 2)`` triangle corners
+    (Shmin, SHmax) in MPa, counter-clockwise.
+
+    The lines Shmin = Sv and SHmax = Sv cut :func:`stress_polygon` into the normal (lower left),
+    strike-slip (upper left) and reverse (upper right) fields.
+
+    Examples
+    --------
+    >>> {k: v.round(2).tolist() for k, v in regime_fields(70.0, 30.0, 0.6).items()}
+    ... # doctest: +NORMALIZE_WHITESPACE
+    {'normal': [[42.82, 42.82], [70.0, 70.0], [42.82, 70.0]],
+     'strike-slip': [[42.82, 70.0], [70.0, 70.0], [70.0, 154.78]],
+     'reverse': [[70.0, 70.0], [154.78, 154.78], [70.0, 154.78]]}
+    """
+    _, sv, _, floor, ceiling = (float(v) for v in _polygon_corners(sv_mpa, pp_mpa, mu))
+    return {
+        "normal": np.array([[floor, floor], [sv, sv], [floor, sv]]),
+        "strike-slip": np.array([[floor, sv], [sv, sv], [sv, ceiling]]),
+        "reverse": np.array([[sv, sv], [ceiling, ceiling], [sv, ceiling]]),
+    }
 
 
 def frictional_equilibrium(sv_mpa, pp_mpa, mu, regime, shape_ratio):

@@ -5,7 +5,10 @@ ranges; the orientation comes from the members of a model ensemble
 (:mod:`stressmap.analyses.ensemble`) when ensemble members or load-group distributions are given,
 otherwise from a normal spread of the SHmax azimuth whose standard deviation is user-given,
 derived from stress indicators near the site (:func:`indicator_spread_deg`) or 15 degrees by
-default. Each plane then gets the distribution of its pore-pressure margin.
+default. Each plane then gets the distribution of its pore-pressure margin, summarised as its
+median, the central 80 % band and the share of samples within ``margin_threshold_mpa`` of
+failure (``reactivation_share``); :func:`fault_margins` gives each fault's least margin per sample
+for its cumulative margin curve.
 """
 
 from __future__ import annotations
@@ -27,7 +30,13 @@ from stressmap.geo.circular import axial_std_deg
 from stressmap.geo.tensor import describe
 from stressmap.model import unit_stress_at
 
-__all__ = ["ensemble_orientation", "indicator_spread_deg", "sample_screening"]
+__all__ = ["CURVE_SHARES", "MARGIN_BAND", "ensemble_orientation", "fault_margins",
+           "indicator_spread_deg", "sample_screening"]
+
+#: Percentiles bounding the central band of a plane's sampled margins (the central 80 %).
+MARGIN_BAND = (10.0, 90.0)
+#: Cumulative shares at which a fault's margin curve is reported (0 %, 5 %, ..., 100 %).
+CURVE_SHARES = np.linspace(0.0, 1.0, 21)
 
 #: Plane-samples evaluated at once when sampling (bounds the temporary arrays to ~100 MB).
 _CHUNK_PLANE_SAMPLES = 250_000
@@ -122,7 +131,7 @@ def sample_screening(result, model, rho_mean: float, code: int, phi: float, az: 
     req = result.request
     n = req.samples
     rng = np.random.default_rng(req.seed)
-    info: dict = {"samples": n, "seed": req.seed, "percentiles": [5, 50, 95],
+    info: dict = {"samples": n, "seed": req.seed, "margin_band_percentiles": list(MARGIN_BAND),
                   "margin_threshold_mpa": req.margin_threshold_mpa}
     mu, sv, pp = _draw_inputs(req, result.site, rho_mean, rng, info, result.notes)
     azs, codes, phis = _draw_orientation(req, model, rng, code, phi, az, info, result.notes)
@@ -139,12 +148,11 @@ def sample_screening(result, model, rho_mean: float, code: int, phi: float, az: 
     if planes["strike_deg"].size:
         stress = sc.principal_tensor_ned(shmax, shmin, sv, azs)          # (N, 3, 3)
         margin = _plane_margins(stress, pp, mu, req.cohesion_mpa, planes)
-        p = np.percentile(margin, pct, axis=0)
-        planes["pore_pressure_margin_p05_mpa"] = p[0]
-        planes["pore_pressure_margin_p50_mpa"] = p[1]
-        planes["pore_pressure_margin_p95_mpa"] = p[2]
-        planes["probability_margin_below_threshold"] = np.mean(
-            margin < req.margin_threshold_mpa, axis=0)
+        low, median, high = np.percentile(margin, [MARGIN_BAND[0], 50.0, MARGIN_BAND[1]], axis=0)
+        planes["margin_median_mpa"] = median
+        planes["margin_band_low_mpa"] = low
+        planes["margin_band_high_mpa"] = high
+        planes["reactivation_share"] = np.mean(margin < req.margin_threshold_mpa, axis=0)
         samples["margin_mpa"] = margin
     result.samples = samples
     result.uncertainty = info
@@ -255,3 +263,36 @@ def _plane_margins(stress, pp, mu, cohesion_mpa: float, planes: dict) -> np.ndar
         margin[sl] = fl.pore_pressure_margin_mpa(sn, tau, pp[sl, None], mu[sl, None],
                                                  cohesion_mpa)
     return margin
+
+
+def fault_margins(result) -> dict:
+    """Each input fault's least margin over its planes (trace segments), per sample.
+
+    Returns
+    -------
+    dict
+        ``name`` (K,), ``kind`` (K,) and ``feature`` (K,) of the faults in rank order (worst
+        first), ``margin_mpa`` (N, K) the least margin of each fault in each sample, and
+        ``curve_mpa`` (K, S): each fault's margin at the cumulative shares :data:`CURVE_SHARES`
+        (the quantiles of its sampled least margin). Empty arrays when nothing was sampled.
+    """
+    pl = result.planes
+    margin = (result.samples or {}).get("margin_mpa")
+    if margin is None or not pl or pl["strike_deg"].size == 0:
+        empty = np.zeros(0, dtype=object)
+        return {"name": empty, "kind": empty, "feature": np.zeros(0, dtype=np.int64),
+                "margin_mpa": np.zeros((0, 0)), "curve_mpa": np.zeros((0, CURVE_SHARES.size))}
+    kind = np.where(np.asarray(pl["kind"], dtype=object) == "trace segment", "trace",
+                    np.asarray(pl["kind"], dtype=object)).astype(str)
+    key = np.char.add(np.char.add(kind, ":"), np.asarray(pl["feature"]).astype(str))
+    _, first, group = np.unique(key, return_index=True, return_inverse=True)
+    order = np.argsort(first, kind="stable")          # faults by their first (worst) plane
+    rank_of_group = np.empty_like(order)
+    rank_of_group[order] = np.arange(order.size)
+    cols = np.argsort(rank_of_group[group], kind="stable")
+    starts = np.searchsorted(rank_of_group[group][cols], np.arange(order.size))
+    least = np.minimum.reduceat(margin[:, cols], starts, axis=1)      # (N, K)
+    heads = first[order]
+    return {"name": np.asarray(pl["name"], dtype=object)[heads], "kind": kind[heads],
+            "feature": np.asarray(pl["feature"])[heads], "margin_mpa": least,
+            "curve_mpa": np.quantile(least, CURVE_SHARES, axis=0).T}

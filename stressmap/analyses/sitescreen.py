@@ -25,6 +25,7 @@ from stressmap.analyses.site_request import (
 from stressmap.analyses.site_result import ScreenResult, orientation_from_model, screen
 from stressmap.analyses.site_sampling import (
     ensemble_orientation,
+    fault_margins,
     indicator_spread_deg,
     sample_screening,
 )
@@ -34,6 +35,7 @@ __all__ = [
     "ScreenRequest",
     "ScreenResult",
     "ensemble_orientation",
+    "fault_margins",
     "indicator_spread_deg",
     "orientation_from_model",
     "parse_plane_text",

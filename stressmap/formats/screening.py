@@ -17,6 +17,7 @@ import pandas as pd
 
 from stressmap.analyses.site_request import ScreenRequest, parse_request
 from stressmap.analyses.site_result import ScreenResult
+from stressmap.analyses.site_sampling import CURVE_SHARES, fault_margins
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError
 from stressmap.formats.faults import faults_from_geojson
@@ -35,8 +36,10 @@ PLANE_FIELDS = (
     "dilation_tendency", "coulomb_failure_stress_mpa", "pore_pressure_margin_mpa", "rake_deg",
     "at_or_beyond_failure",
 )
-_UNCERTAIN_FIELDS = ("pore_pressure_margin_p05_mpa", "pore_pressure_margin_p50_mpa",
-                     "pore_pressure_margin_p95_mpa", "probability_margin_below_threshold")
+#: Per-plane fields of a sampled screening: the median margin, the central 80 % band of the
+#: sampled margins and the share of samples within the margin threshold of failure.
+_UNCERTAIN_FIELDS = ("margin_median_mpa", "margin_band_low_mpa", "margin_band_high_mpa",
+                     "reactivation_share")
 
 
 
@@ -112,12 +115,18 @@ def _fault_summary(result: ScreenResult) -> list[dict]:
                       least_margin_mpa=("pore_pressure_margin_mpa", "min"),
                       max_slip_tendency=("slip_tendency", "max"),
                       worst_rank=("rank", "min")).reset_index()
-    if "probability_margin_below_threshold" in pl:
-        frame["p"] = pl["probability_margin_below_threshold"]
-        out["max_probability_margin_below_threshold"] = frame.groupby(
-            ["kind", "feature"], sort=False)["p"].max().to_numpy()
     out = out.sort_values("worst_rank", kind="stable")
-    return [_plain(r) for r in out.to_dict("records")]
+    records = [_plain(r) for r in out.to_dict("records")]
+    curves = fault_margins(result)
+    if curves["name"].size:  # the cumulative margin curve of each fault (its least margin)
+        share = curves["margin_mpa"] < result.request.margin_threshold_mpa
+        by_key = {(str(k), int(f)): (c, float(sh)) for k, f, c, sh in zip(
+            curves["kind"], curves["feature"], curves["curve_mpa"], share.mean(axis=0))}
+        for rec in records:
+            curve, sh = by_key[(str(rec["kind"]), int(rec["feature"]))]
+            rec["reactivation_share"] = sh
+            rec["margin_curve_mpa"] = _plain(curve)
+    return records
 
 
 def result_json(result: ScreenResult) -> dict:
@@ -130,12 +139,18 @@ def result_json(result: ScreenResult) -> dict:
         out["model"] = result.model_info
     out["planes"] = _plane_records(result)
     out["faults"] = _fault_summary(result)
-    out["uncertainty"] = result.uncertainty
+    out["uncertainty"] = (None if result.uncertainty is None else
+                          dict(result.uncertainty, margin_curve_shares=CURVE_SHARES.tolist()))
     out["notes"] = list(result.notes)
     out["conventions"] = ("stress compression positive, MPa; effective stress = total - Pp; "
                           "strike/dip by the right-hand rule (dip direction = strike + 90); "
                           "azimuths clockwise from north; rake of the hanging wall's slip; "
-                          "pore_pressure_margin_mpa = pore-pressure increase to Coulomb failure")
+                          "pore_pressure_margin_mpa = pore-pressure increase to Coulomb failure; "
+                          "sampled: margin_median_mpa, margin_band_low_mpa..margin_band_high_mpa "
+                          "(central 80 % of samples), reactivation_share = share of samples "
+                          "with a margin below margin_threshold_mpa; per fault "
+                          "margin_curve_mpa = its least margin at the cumulative shares "
+                          "uncertainty.margin_curve_shares")
     return _plain(out)
 
 

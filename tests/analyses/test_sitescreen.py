@@ -69,11 +69,11 @@ def test_sampling_is_reproducible_and_pore_range_moves_margins_one_to_one():
     b = run(**base, uncertainty={"samples": 500, "seed": 4, "pore_pressure_range_mpa": [25, 30],
                                  "azimuth_sigma_deg": 0})
     assert a["planes"] == b["planes"]
-    # with fixed measured magnitudes and orientation, margin = fixed - Pp: its 5-95 % band
-    # spans the 5-95 % band of a uniform 25-30 MPa Pp, i.e. 0.9 * 5 MPa = 4.5 MPa
+    # with fixed measured magnitudes and orientation, margin = fixed - Pp: its central 80 %
+    # band spans the 10-90 % band of a uniform 25-30 MPa Pp, i.e. 0.8 * 5 MPa = 4.0 MPa
     for p in a["planes"]:
-        width = p["pore_pressure_margin_p95_mpa"] - p["pore_pressure_margin_p05_mpa"]
-        assert_allclose(width, 4.5, atol=0.25)
+        width = p["margin_band_high_mpa"] - p["margin_band_low_mpa"]
+        assert_allclose(width, 4.0, atol=0.25)
 
 
 def test_traces_without_dip_direction_dip_right_of_digitising():
@@ -177,3 +177,31 @@ def test_density_profile_gradient_is_optional_per_layer():
                                                  "gradient_kg_m3_per_km": [None, 100.0]})
     assert_allclose(doc["sv_mpa"], 9.81e3 * (2200 * 1 + 2400 * 2 + 100 * 4 / 2) / 1e6, rtol=1e-12)
     assert doc["density_profile"]["gradient_kg_m3_per_km"] == [0.0, 100.0]
+
+
+def test_fault_margin_curves_are_the_least_margin_over_each_faults_segments():
+    # Per fault, per sample: the least margin over its planes; the curve is its empirical
+    # quantile function (checked against numpy on the sampled margins directly).
+    from stressmap.analyses.sitescreen import fault_margins
+
+    faults = {"type": "FeatureCollection", "features": [
+        {"type": "Feature", "properties": {"name": "bent", "dip_deg": 60, "dip_direction_deg": 90},
+         "geometry": {"type": "LineString",
+                      "coordinates": [[-15.0, -20.0], [-15.0, -19.95], [-14.99, -19.90]]}}]}
+    req = parse_request({**SITE, "regime": "normal", "planes": ["040/60", "130/80"],
+                         "faults": faults, "uncertainty": {"samples": 300, "seed": 1,
+                                                           "friction_range": [0.5, 0.8]}})
+    res = screen(req)
+    fm = fault_margins(res)
+    assert sorted(fm["name"]) == ["bent", "plane 1 (040/60)", "plane 2 (130/80)"]
+    seg = np.asarray(res.planes["kind"]) == "trace segment"
+    k = list(fm["name"]).index("bent")
+    assert_allclose(fm["margin_mpa"][:, k], res.samples["margin_mpa"][:, seg].min(axis=1))
+    assert_allclose(fm["curve_mpa"][k], np.quantile(fm["margin_mpa"][:, k],
+                                                    np.linspace(0, 1, 21)))
+    doc = result_json(res)
+    bent = next(f for f in doc["faults"] if f["name"] == "bent")
+    assert bent["margin_curve_mpa"] == pytest.approx(fm["curve_mpa"][k].tolist())
+    assert bent["reactivation_share"] == pytest.approx(float(np.mean(fm["margin_mpa"][:, k] < 0)))
+    for old in ("pore_pressure_margin_p05_mpa", "probability_margin_below_threshold"):
+        assert old not in doc["planes"][0]

@@ -109,12 +109,12 @@ def test_sampling_reports_percentiles_and_probability(capsys):
     unc = doc["uncertainty"]
     assert unc["samples"] == 400 and "sigma 10 deg (user-given)" in unc["orientation_source"]
     for p in doc["planes"]:
-        assert p["pore_pressure_margin_p05_mpa"] <= p["pore_pressure_margin_p50_mpa"] <= \
-            p["pore_pressure_margin_p95_mpa"]
-        assert 0.0 <= p["probability_margin_below_threshold"] <= 1.0
+        assert p["margin_band_low_mpa"] <= p["margin_median_mpa"] <= p["margin_band_high_mpa"]
+        assert 0.0 <= p["reactivation_share"] <= 1.0
     # the near-critical plane is far more likely below 2 MPa than the steep cross plane
-    assert doc["planes"][0]["probability_margin_below_threshold"] > 0.3
-    assert doc["planes"][1]["probability_margin_below_threshold"] < 0.05
+    assert doc["planes"][0]["reactivation_share"] > 0.3
+    assert doc["planes"][1]["reactivation_share"] < 0.05
+    assert unc["margin_band_percentiles"] == [10.0, 90.0]
 
 
 @pytest.mark.parametrize(
