@@ -1,0 +1,96 @@
+"""Reservoir and well screening: ``POST /wells/{analysis}`` (profile, tendency-net, stress-path,
+stability, window, breakout).
+
+Thin view: validate (:func:`stressmap.analyses.wells.parse_well_request`), load the model by id
+when one is named, run the analysis within the request time limit, answer JSON, CSV or PNG in
+the units asked for. Nothing is stored, so no token is needed. Every answer carries the caution.
+"""
+
+from __future__ import annotations
+
+import json
+
+from flask import Blueprint, Response, jsonify, request
+from stressmap_api import queries
+from stressmap_api.limits import run_limited
+from stressmap_api.store import check_id, get_store
+
+from stressmap.analyses import wells
+from stressmap.constants import CAUTION
+from stressmap.errors import InputError, problem
+from stressmap.formats.wells import csv_table, json_document
+from stressmap.plot import wells as plot_wells
+
+__all__ = ["bp", "ANALYSES", "FORMATS"]
+
+bp = Blueprint("wells", __name__)
+
+ANALYSES = {"profile": wells.run_profile, "tendency-net": wells.run_net,
+            "stress-path": wells.run_stress_path, "stability": wells.run_stability,
+            "window": wells.run_window, "breakout": wells.run_breakout}
+PICTURES = {"profile": plot_wells.profile_png, "tendency-net": plot_wells.net_png,
+            "stress-path": plot_wells.path_png, "window": plot_wells.window_png}
+FORMATS = ("json", "csv", "png")
+
+
+def _format(body: dict, analysis: str) -> str:
+    value = body.pop("format", None) or request.args.get("format") or "json"
+    allowed = FORMATS if analysis in PICTURES else FORMATS[:2]
+    if not isinstance(value, str) or value.lower() not in allowed:
+        raise InputError(f"format must be one of {', '.join(allowed)}",
+                         [problem(f"unknown format {value!r} for {analysis}", field="format")])
+    return value.lower()
+
+
+def _model(body: dict):
+    model_id = body.pop("model_id", None)
+    if model_id is None:
+        return None, None
+    if not isinstance(model_id, str):
+        raise InputError("model_id must be a string",
+                         [problem("expected a model id", field="model_id")])
+    check_id(model_id)
+    store = get_store()
+    model = store.load(model_id)
+    meta = store.meta(model_id)
+    return model, {"id": model_id, "name": meta.get("name"), "build_time": meta.get("build_time")}
+
+
+def _run(analysis, req, model, info, fmt):
+    result = ANALYSES[analysis](req, model, info)
+    if fmt == "csv":
+        return csv_table(result)
+    doc = json_document(result)
+    return PICTURES[analysis](doc) if fmt == "png" else doc
+
+
+@bp.post("/wells/<analysis>")
+def run(analysis: str):
+    if analysis not in ANALYSES:
+        raise InputError(f"unknown well analysis {analysis!r}",
+                         [problem(f"use one of {', '.join(ANALYSES)}", field="analysis")])
+    body = queries.json_body(request)
+    if not isinstance(body, dict):
+        raise InputError("the request body must be a JSON object",
+                         [problem(f"expected an object, got {type(body).__name__}",
+                                  field="(body)")])
+    body = dict(body)
+    fmt = _format(body, analysis)
+    model, info = _model(body)
+    req = wells.parse_well_request(body)
+    if analysis == "profile" and req.site.samples > 0:
+        if req.site.samples > 20000:
+            raise InputError("too many samples for a profile (at most 20000)",
+                             [problem("use fewer samples", field="uncertainty.samples")])
+    payload = run_limited(_run, analysis, req, model, info, fmt)
+    caution = json.dumps(CAUTION)[1:-1]
+    if fmt == "json":
+        return jsonify(payload)
+    stem = f"stressmap-well-{analysis}"
+    if fmt == "csv":
+        return Response(payload, status=200, content_type="text/csv; charset=utf-8",
+                        headers={"Content-Disposition": f'attachment; filename="{stem}.csv"',
+                                 "X-Stressmap-Caution": caution})
+    return Response(payload, status=200, content_type="image/png",
+                    headers={"Content-Disposition": f'inline; filename="{stem}.png"',
+                             "X-Stressmap-Caution": caution})
