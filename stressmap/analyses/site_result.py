@@ -27,7 +27,7 @@ from stressmap.analyses.site_sampling import sample_screening
 from stressmap.errors import InputError, OutsidePlateError, problem
 from stressmap.model import predict_points
 
-__all__ = ["ScreenResult", "orientation_from_model", "screen"]
+__all__ = ["ScreenResult", "collect_planes", "orientation_from_model", "screen"]
 
 
 def orientation_from_model(model, lon: float, lat: float, weights=None) -> dict:
@@ -77,7 +77,7 @@ class ScreenResult:
     model_info: dict | None = None
 
 
-def _collect_planes(req: ScreenRequest, notes: list) -> dict:
+def collect_planes(req: ScreenRequest, notes: list) -> dict:
     """All planes: given strike/dip planes first, then one per straight trace segment."""
     n_pl = req.plane_strike_deg.size
     strike = [req.plane_strike_deg]
@@ -242,7 +242,7 @@ def screen(req: ScreenRequest, model=None, model_info: dict | None = None) -> Sc
     if orient is not None:
         site["model_orientation"] = orient
 
-    planes = _collect_planes(req, notes)
+    planes = collect_planes(req, notes)
     if planes["strike_deg"].size:
         tend = fl.fault_tendencies(stress, pp, planes["strike_deg"], planes["dip_deg"], mu,
                                    req.cohesion_mpa)

@@ -22,7 +22,12 @@ from stressmap.analyses.site_request import (
     parse_request,
     parse_site_text,
 )
-from stressmap.analyses.site_result import ScreenResult, orientation_from_model, screen
+from stressmap.analyses.site_result import (
+    ScreenResult,
+    collect_planes,
+    orientation_from_model,
+    screen,
+)
 from stressmap.analyses.site_sampling import (
     ensemble_orientation,
     fault_margins,
@@ -34,6 +39,7 @@ __all__ = [
     "DEFAULTS",
     "ScreenRequest",
     "ScreenResult",
+    "collect_planes",
     "ensemble_orientation",
     "fault_margins",
     "indicator_spread_deg",

@@ -23,7 +23,7 @@ from stressmap.errors import InputError
 from stressmap.formats.faults import faults_from_geojson
 from stressmap.formats.indicators import indicators_from_geojson
 
-__all__ = ["CAUTION_SUFFIX", "PLANE_FIELDS", "parse_request_json", "result_csv", "result_geojson",
+__all__ = ["CAUTION_SUFFIX", "PLANE_FIELDS", "decode_geojson_parts", "parse_request_json", "result_csv", "result_geojson",
            "result_json"]
 
 #: Appended wherever the caution is printed in running text.
@@ -48,6 +48,21 @@ def parse_request_json(doc) -> ScreenRequest:
     GeoJSON FeatureCollections (the HTTP body); all problems reported together."""
     if not isinstance(doc, dict):
         return parse_request(doc)  # raises the "must be an object" problem
+    doc, problems = decode_geojson_parts(doc)
+    try:
+        req = parse_request(doc)
+    except InputError as exc:
+        problems.extend(exc.problems)
+    if problems:
+        raise InputError(problems[0]["message"] if len(problems) == 1 else
+                         f"{len(problems)} problems with the screening request", problems)
+    return req
+
+
+def decode_geojson_parts(doc: dict) -> tuple[dict, list]:
+    """A copy of a request body with ``faults`` and ``uncertainty.indicators`` read from GeoJSON
+    (parsed faults, a prepared indicator table), and the problems found in them (parts with
+    problems are left out, so the rest can still be checked)."""
     doc = dict(doc)
     problems: list[dict] = []
     if isinstance(doc.get("faults"), dict) and "traces" not in doc["faults"]:
@@ -67,14 +82,7 @@ def parse_request_json(doc) -> ScreenRequest:
         except InputError as exc:
             problems.extend(exc.problems)
             unc.pop("indicators")
-    try:
-        req = parse_request(doc)
-    except InputError as exc:
-        problems.extend(exc.problems)
-    if problems:
-        raise InputError(problems[0]["message"] if len(problems) == 1 else
-                         f"{len(problems)} problems with the screening request", problems)
-    return req
+    return doc, problems
 
 
 def _plain(v):
