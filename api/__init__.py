@@ -99,6 +99,7 @@ def create_app(test_config: dict | None = None) -> Flask:
             init = getattr(module, "init_app", None)
             if init is not None:
                 init(app)
+    importlib.import_module(f"{blueprints.__name__}.mappage").register(app)  # / and /map page
 
     logging.getLogger(__name__).debug("stressmap service created")
     return app

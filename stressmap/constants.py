@@ -32,7 +32,7 @@ M_PER_S_PER_MM_PER_YR = 1e-3 / SECONDS_PER_YEAR
 PA_PER_MPA = 1e6
 
 #: The one caution wording used by every output that could inform a drilling, injection or
-#: hazard decision (DESIGN.md).
+#: hazard decision (README, Caution).
 CAUTION = (
     "Screening estimate from a regional, plate-scale model. It does not replace site-specific "
     "engineering studies, in-situ stress measurements, local codes and regulations, or the "

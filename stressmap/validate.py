@@ -24,6 +24,7 @@ Layer: base (imports only the standard library, numpy and :mod:`stressmap.errors
 
 from __future__ import annotations
 
+import json
 import math
 import re
 import sys
@@ -145,6 +146,30 @@ def _fmt(v) -> str:
         return repr(v)
 
 
+def _missing(what: str, required) -> str:
+    return f"missing {what!r}" + (f" ({required})" if isinstance(required, str) else "")
+
+
+def _short(value) -> str:
+    """A value as JSON-like text of at most 60 characters (arrays shown, not described).
+
+    Examples
+    --------
+    >>> _short([1.0, float("nan"), True]), len(_short("x" * 70)), _short({1})
+    ('[1.0, NaN, true]', 60, 'set')
+    """
+    if isinstance(value, (list, tuple)):
+        try:
+            text = json.dumps(list(value))
+        except (TypeError, ValueError):
+            text = describe(value)
+    elif isinstance(value, str):
+        text = repr(value)
+    else:
+        text = describe(value)
+    return text if len(text) <= 60 else text[:57] + "..."
+
+
 def _add(problems: list, message: str, field, row) -> None:
     problems.append(problem(message, field=field, row=row))
 
@@ -174,8 +199,9 @@ def number(value, field: str | None, problems: list, *, name: str | None = None,
     integer
         Require a whole number (3.0 is accepted and returned as 3).
     required
-        When the value is :data:`MISSING` (or empty text): record "NAME is required" (a string
-        is appended as the explanation, ``required="depth in km"``). When false, return None
+        When the value is :data:`MISSING` (or empty text): record "missing 'NAME'" (a string
+        is added as the explanation, ``required="depth in km"`` gives "missing 'NAME' (depth
+        in km)"). When false, return None
         silently.
     nullable
         Accept ``None`` (JSON null) as "not given" and return None silently; otherwise null is
@@ -204,63 +230,62 @@ def number(value, field: str | None, problems: list, *, name: str | None = None,
     >>> number(" 7.5 ", "dip_deg", p, text=True, row=3, high=90), number("", "dip_deg", p, text=True, required=True, row=4)
     (7.5, None)
     >>> p
-    [{'message': 'dip_deg is required', 'field': 'dip_deg', 'row': 4}]
+    [{'message': "missing 'dip_deg'", 'field': 'dip_deg', 'row': 4}]
     """
     what = name or leaf(field)
-    if value is MISSING or (text and isinstance(value, str) and not value.strip()):
-        if required:
-            _add(problems, f"{what} is required" + (f": {required}" if isinstance(required, str)
-                                                    else ""), field, row)
+    if value is MISSING or (text and isinstance(value, str) and not value.strip()) or (
+            value is None and (nullable or (required and text))):
+        if required and not (value is None and nullable):
+            _add(problems, _missing(what, required), field, row)
         return None
-    if value is None:
-        if nullable:
-            return None
-        if required and text:
-            _add(problems, f"{what} is required" + (f": {required}" if isinstance(required, str)
-                                                    else ""), field, row)
-            return None
-    if text and isinstance(value, str):
-        try:
-            v = float(value.strip())
-        except ValueError:
-            _add(problems, f"{what} must be a number, got {describe(value)}", field, row)
-            return None
-    elif isinstance(value, (bool, np.bool_)) or not isinstance(
-            value, (int, float, np.integer, np.floating)):
-        _add(problems, f"{what} must be a number, got {describe(value)}", field, row)
-        return None
-    else:
-        try:
-            v = float(value)
-        except OverflowError:
-            _add(problems, f"{what} is too large: {_fmt(value)} does not fit a 64-bit float",
-                 field, row)
-            return None
-    if not math.isfinite(v):
-        _add(problems, f"{what} must be finite, got {v}", field, row)
-        return None
-    if not subnormal and v != 0.0 and abs(v) < _TINY:
-        _add(problems, f"{what} {v:g} is a subnormal number, too small to compute with; give 0 "
-             f"or a magnitude of at least {_TINY:g}", field, row)
-        return None
-    if integer and v != math.floor(v):
-        _add(problems, f"{what} must be a whole number, got {v:g}", field, row)
-        return None
-    if low is not None and (v < low or (v == low and not low_inclusive)):
-        _add(problems, f"{what} must be {'>=' if low_inclusive else '>'} {_fmt(low)}, got "
-             f"{_fmt(v)}", field, row)
-        return None
-    if high is not None and (v > high or (v == high and not high_inclusive)):
-        _add(problems, f"{what} must be {'<=' if high_inclusive else '<'} {_fmt(high)}, got "
-             f"{_fmt(v)}", field, row)
+    v, why = _as_float(value, text)
+    if why is None and not subnormal and v != 0.0 and abs(v) < _TINY:
+        why = (f"{v:g} is a subnormal number, too small to compute with; give 0 or a magnitude "
+               f"of at least {_TINY:g}")
+    if why is None and integer and v != math.floor(v):
+        why = f"must be a whole number, got {v:g}"
+    if why is None:
+        why = _outside(v, low, high, low_inclusive, high_inclusive)
+    if why is not None:
+        _add(problems, f"{what} {why}", field, row)
         return None
     return int(v) if integer else v
 
 
+def _as_float(value, text: bool) -> tuple[float, str | None]:
+    """(value as a finite float, None) or (nan, why not) -- the message without the name."""
+    if text and isinstance(value, str):
+        try:
+            v = float(value.strip())
+        except ValueError:
+            return math.nan, f"must be a number, got {describe(value)}"
+    elif isinstance(value, (bool, np.bool_)) or not isinstance(
+            value, (int, float, np.integer, np.floating)):
+        return math.nan, f"must be a number, got {describe(value)}"
+    else:
+        try:
+            v = float(value)
+        except OverflowError:
+            return math.nan, f"is too large: {_fmt(value)} does not fit a 64-bit float"
+    return (v, None) if math.isfinite(v) else (v, f"must be finite, got {v}")
+
+
+def _outside(v: float, low, high, low_inclusive: bool, high_inclusive: bool) -> str | None:
+    """Why ``v`` lies outside the range (naming the side broken), or None."""
+    if low is not None and (v < low or (v == low and not low_inclusive)):
+        return f"must be {'>=' if low_inclusive else '>'} {_fmt(low)}, got {_fmt(v)}"
+    if high is not None and (v > high or (v == high and not high_inclusive)):
+        return f"must be {'<=' if high_inclusive else '<'} {_fmt(high)}, got {_fmt(v)}"
+    return None
+
+
 def number_pair(value, field: str | None, problems: list, *, name: str | None = None,
                 row: int | None = None, low: float | None = None, high: float | None = None,
-                required: bool | str = False) -> tuple[float, float] | None:
+                required: bool | str = False, text: str | None = None
+                ) -> tuple[float, float] | None:
     """A ``[low, high]`` interval of finite numbers within ``[low, high]`` (inclusive).
+
+    ``text`` is a separator: with ``text=","`` the string ``"0.5,0.8"`` reads as a pair too.
 
     Examples
     --------
@@ -270,24 +295,30 @@ def number_pair(value, field: str | None, problems: list, *, name: str | None = 
     >>> number_pair([0.8, 0.4], "uncertainty.friction_range", p)
     >>> number_pair([0.1, 3], "uncertainty.friction_range", p, low=0, high=2)
     >>> number_pair("0.1,0.2", "uncertainty.friction_range", p)
+    >>> number_pair("0.1,x", "--friction-range", p, text=",")
     >>> for q in p: print(q["message"])
     friction_range low 0.8 exceeds high 0.4
     friction_range must lie within [0, 2], got [0.1, 3]
     friction_range must be a pair [low, high] of finite numbers, got the string '0.1,0.2'
+    --friction-range must be a pair LOW,HIGH of finite numbers, got the string '0.1,x'
+    >>> number_pair(" 1 , 2", "--friction-range", p, text=",")
+    (1.0, 2.0)
     """
     what = name or leaf(field)
     if value is MISSING or value is None:
         if required:
-            _add(problems, f"{what} is required" + (f": {required}" if isinstance(required, str)
-                                                    else ""), field, row)
+            _add(problems, _missing(what, required), field, row)
         return None
+    given = value
+    if text and isinstance(value, str):
+        value = value.split(text)
     inner: list = []
     if isinstance(value, (list, tuple)) and len(value) == 2:
-        inner = [number(v, field, inner, name=what) for v in value]
+        inner = [number(v, field, inner, name=what, text=bool(text)) for v in value]
     if len(value if isinstance(value, (list, tuple)) else ()) != 2 or any(
             v is None for v in inner):
-        _add(problems, f"{what} must be a pair [low, high] of finite numbers, got "
-             f"{describe(value)}", field, row)
+        _add(problems, f"{what} must be a pair {'LOW' + text + 'HIGH' if text else '[low, high]'}"
+             f" of finite numbers, got {describe(given)}", field, row)
         return None
     a, b = inner
     if a > b:
@@ -505,11 +536,15 @@ def positions(value, field: str, problems: list, *, min_count: int = 1,
     return np.asarray(out, dtype=float).reshape(-1, 2)
 
 
-def lonlat_arrays(lon, lat, field_of: Callable[[int], str], problems: list, *,
-                  lon_range: tuple[float, float] | None = LON_RANGE,
+def lonlat_arrays(lon, lat, field_of, problems: list, *,
+                  lon_range: tuple[float, float] | None = LON_RANGE, first_row: int = 1,
                   max_listed: int = 20) -> bool:
-    """Check coordinate arrays at once (vectorised); one problem per bad row, at most
-    ``max_listed`` per axis, rows 1-based. Returns True when all are in range.
+    """Check coordinate arrays at once (vectorised): NaN/infinity and out-of-range values, one
+    problem per bad row and axis (at most ``max_listed`` each, then one counting the rest).
+    Returns True when all are good.
+
+    ``field_of`` names the field of row i: a function ``i -> str`` (``points[i]``) or a pair of
+    column names ``("lon", "lat")``. Rows are numbered from ``first_row``.
 
     Examples
     --------
@@ -519,18 +554,28 @@ def lonlat_arrays(lon, lat, field_of: Callable[[int], str], problems: list, *,
     >>> for q in p: print(q["field"], q["row"], q["message"])
     points[1] 2 latitude 95 is outside [-90, 90]
     points[2] 3 longitude 400 is outside [-360, 360]
+    >>> p = []
+    >>> lonlat_arrays([np.nan, 1, 2], [0, 0, 0], ("lon", "lat"), p, max_listed=0)
+    False
+    >>> p
+    [{'message': '1 more rows with bad longitude', 'field': 'lon'}]
     """
     lon = np.asarray(lon, dtype=float)
     lat = np.asarray(lat, dtype=float)
     n0 = len(problems)
-    bad = np.flatnonzero(~((lat >= -90.0) & (lat <= 90.0)))
-    for i in bad[:max_listed].tolist():
-        _add(problems, f"latitude {lat[i]:g} is outside [-90, 90]", field_of(i), i + 1)
-    if lon_range is not None:
-        bad = np.flatnonzero(~((lon >= lon_range[0]) & (lon <= lon_range[1])))
-        for i in bad[:max_listed].tolist():
-            _add(problems, f"longitude {lon[i]:g} is outside [{lon_range[0]:g}, "
-                 f"{lon_range[1]:g}]", field_of(i), i + 1)
+    axes = (("latitude", lat, (-90.0, 90.0), 1), ("longitude", lon, lon_range, 0))
+    for word, values, rng, k in axes:
+        name = field_of if callable(field_of) else (lambda i, k=k: field_of[k])
+        finite = np.isfinite(values)
+        bad = ~finite if rng is None else ~(finite & (values >= rng[0]) & (values <= rng[1]))
+        rows = np.flatnonzero(bad)
+        for i in rows[:max_listed].tolist():
+            why = (f"must be a finite number, got {values[i]}" if not finite[i] else
+                   f"{values[i]:g} is outside [{rng[0]:g}, {rng[1]:g}]")
+            _add(problems, f"{word} {why}", name(i), i + first_row)
+        if rows.size > max_listed:
+            _add(problems, f"{rows.size - max_listed} more rows with bad {word}",
+                 None if callable(field_of) else field_of[k], None)
     return len(problems) == n0
 
 
@@ -572,7 +617,7 @@ def bbox(value, field: str | None, problems: list, *, row: int | None = None,
     west 5 and east 5 must differ: the box has no width (-180, ..., 180, ... is the whole globe)
     south 10 must be below north 5, both within [-90, 90]
     west -180 and east 360 span 540 degrees of longitude; at most 360
-    expected four numbers W,S,E,N in degrees, got the string '1,2,3'
+    expected four finite numbers [W, S, E, N] in degrees (W,S,E,N in text), got [1.0, 2.0, 3.0]
     """
     values = value
     if text and isinstance(value, str):
@@ -586,9 +631,9 @@ def bbox(value, field: str | None, problems: list, *, row: int | None = None,
     else:
         nums = [number(v, field, inner) for v in values]
     if nums is None or any(v is None for v in nums):
-        _add(problems, f"expected four numbers W,S,E,N in degrees, got {describe(value)}"
-             if text and isinstance(value, str) else
-             f"expected four finite numbers [W, S, E, N], got {describe(value)}", field, row)
+        shown = _short(values if isinstance(values, (list, tuple)) else value)
+        _add(problems, f"expected four finite numbers [W, S, E, N] in degrees"
+             f"{' (W,S,E,N in text)' if text else ''}, got {shown}", field, row)
         return None
     w, s, e, n = nums
     n0 = len(problems)
@@ -626,7 +671,7 @@ def weights(value, field: str, problems: list, *, nullable: bool = True) -> dict
     """
     if value is None or value is MISSING:
         if not nullable:
-            _add(problems, f"{leaf(field)} is required", field, None)
+            _add(problems, _missing(leaf(field), True), field, None)
         return None
     if not isinstance(value, dict):
         _add(problems, f"{leaf(field)} must be an object of load group -> number, got "

@@ -118,7 +118,6 @@ def _reads_package_data(fn) -> bool:
 #: only shrinks; the test fails on any breach not listed here and on any listed one that is gone.
 PENDING = {
     "stressmap.model.build: core module opens a file (open_dataset)",
-    "stressmap.model.plate: core layer 'model' imports edge module stressmap.io.plate_files (io)",
 }
 
 

@@ -6,6 +6,8 @@ import sys
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from stressmap import validate as v
 from stressmap.errors import InputError, ModelValidationError
@@ -74,7 +76,7 @@ def test_number_missing_null_and_text():
     assert v.number(v.MISSING, "x", p) is None and p == []
     assert v.number(None, "x", p, nullable=True) is None and p == []
     assert v.number(v.MISSING, "depth_km", p, required="depth below the surface in km") is None
-    assert messages(p) == ["depth_km is required: depth below the surface in km"]
+    assert messages(p) == ["missing 'depth_km' (depth below the surface in km)"]
     p = []
     assert v.number(" -3e2 ", "c", p, text=True) == -300.0
     assert v.number("abc", "c", p, text=True, row=4) is None
@@ -136,7 +138,16 @@ def test_lonlat_arrays_limits_listed_rows():
     p = []
     lat = np.full(50, 95.0)
     assert not v.lonlat_arrays(np.zeros(50), lat, lambda i: f"points[{i}]", p, max_listed=5)
-    assert len(p) == 5 and p[0]["row"] == 1 and p[4]["field"] == "points[4]"
+    assert len(p) == 6 and p[0]["row"] == 1 and p[4]["field"] == "points[4]"
+    assert p[5]["message"] == "45 more rows with bad latitude"
+
+
+def test_lonlat_arrays_names_columns_and_refuses_nan():
+    p = []
+    assert not v.lonlat_arrays([np.nan, 1.0, 200.0], [0.0, np.inf, 0.0], ("lon", "lat"), p,
+                               first_row=2)
+    assert [(q["field"], q["row"]) for q in p] == [("lat", 3), ("lon", 2), ("lon", 4)]
+    assert "finite" in p[0]["message"] and "outside [-180, 180]" in p[2]["message"]
 
 
 @pytest.mark.parametrize("box, width", [
@@ -190,3 +201,125 @@ def test_raise_problems_collects_all_into_the_given_error():
         v.raise_problems(p, "invalid plate model document", ModelValidationError)
     assert [q["field"] for q in err.value.problems] == ["sheet.poisson", "sheet.thickness_km"]
     assert isinstance(err.value, InputError)
+
+
+# -- the readers use this module: the same bad value reads the same everywhere -----------------
+
+def _demo_plate():
+    import importlib.resources
+    import json
+
+    return json.loads(importlib.resources.files("stressmap.data").joinpath("demo_plate.json")
+                      .read_text(encoding="utf-8"))
+
+
+def _plate_problem(doc, field):
+    from stressmap.model.plate import parse_plate
+
+    with pytest.raises(ModelValidationError) as err:
+        parse_plate(doc)
+    hits = [p for p in err.value.problems if p.get("field") == field]
+    assert len(hits) == 1, err.value.problems
+    return hits[0]["message"]
+
+
+def _fault_problem(tmp_path, props, field):
+    import json
+
+    from stressmap.io.faults import read_fault_file
+
+    path = tmp_path / "faults.geojson"
+    path.write_text(json.dumps({"type": "FeatureCollection", "features": [
+        {"type": "Feature", "properties": props,
+         "geometry": {"type": "Point", "coordinates": [0.0, 0.0]}}]}))
+    with pytest.raises(InputError) as err:
+        read_fault_file(path)
+    hits = [p for p in err.value.problems if p.get("field") == field]
+    assert len(hits) == 1 and hits[0]["row"] == 1, err.value.problems
+    return hits[0]["message"]
+
+
+def _expected(value, field, **kw):
+    p = []
+    assert v.number(value, field, p, **kw) is None
+    return p[0]["message"]
+
+
+@pytest.mark.parametrize("bad", [True, [60], {"value": 60}, 10**400, 5e-324])
+def test_plate_document_and_fault_file_report_a_bad_number_alike(tmp_path, bad):
+    doc = _demo_plate()
+    doc["boundary"]["features"][0]["properties"]["age_myr"] = bad
+    plate_msg = _plate_problem(doc, "boundary.features[0].properties.age_myr")
+    fault_msg = _fault_problem(tmp_path, {"strike_deg": 10, "dip_deg": bad}, "dip_deg")
+    assert plate_msg == _expected(bad, "age_myr")
+    assert fault_msg == _expected(bad, "dip_deg")
+    assert plate_msg.removeprefix("age_myr ") == fault_msg.removeprefix("dip_deg ")
+
+
+@pytest.mark.parametrize("value, plate_field, fault_field", [
+    (-3.0, ("age_myr", dict(low=0, low_inclusive=False, high=400)),
+     ("dip_deg", dict(low=0, high=90))),
+    (120, ("pull_fraction", dict(low=0, high=1)), ("dip_deg", dict(low=0, high=90))),
+])
+def test_range_messages_come_from_the_validator(tmp_path, value, plate_field, fault_field):
+    doc = _demo_plate()
+    seg = next(i for i, f in enumerate(doc["boundary"]["features"])
+               if f["properties"]["kind"] == "subduction")
+    name, kw = plate_field
+    doc["boundary"]["features"][seg]["properties"][name] = value
+    assert _plate_problem(doc, f"boundary.features[{seg}].properties.{name}") == \
+        _expected(value, name, **kw)
+    name, kw = fault_field
+    assert _fault_problem(tmp_path, {"strike_deg": 10, name: value}, name) == \
+        _expected(value, name, **kw)
+
+
+def test_plate_position_and_cli_bbox_and_grid_use_the_one_box_rule(tmp_path):
+    from stressmap.cli.model import parse_bbox
+    from stressmap.geo.grid import regular_grid
+
+    with pytest.raises(InputError) as cli:
+        parse_bbox("10,0,10,5")
+    with pytest.raises(InputError) as grid:
+        regular_grid((10, 0, 10, 5), 50.0)
+    p = []
+    v.bbox([10, 0, 10, 5], "--bbox", p)
+    assert cli.value.problems == p
+    assert [q["message"] for q in grid.value.problems] == messages(p)
+    doc = _demo_plate()
+    doc["boundary"]["features"][2]["geometry"]["coordinates"][0] = [10.0, 95.0]
+    field = "boundary.features[2].geometry.coordinates[0]"
+    p = []
+    v.position([10.0, 95.0], field, p)
+    assert _plate_problem(doc, field) == p[0]["message"]
+
+
+# -- no JSON value makes a checker raise -------------------------------------------------------
+
+
+JSON = st.recursive(
+    st.none() | st.booleans() | st.integers() | st.floats() | st.text(max_size=20),
+    lambda inner: st.lists(inner, max_size=5) | st.dictionaries(st.text(max_size=5), inner, max_size=5),
+    max_leaves=12)
+
+
+@settings(max_examples=300, deadline=None)
+@given(JSON)
+def test_any_json_value_gives_a_value_or_named_problems(value):
+    checks = [
+        lambda p: v.number(value, "f", p, low=0, high=1, integer=True),
+        lambda p: v.number(value, "f", p, text=True, required=True),
+        lambda p: v.number_pair(value, "f", p, low=0, text=","),
+        lambda p: v.choice(value, ("a", "b"), "f", p, casefold=True),
+        lambda p: v.boolean(value, "f", p, text=True),
+        lambda p: v.text(value, "f", p, max_length=5),
+        lambda p: v.position(value, "f", p, text=True, mapping=True),
+        lambda p: v.positions(value, "f", p, min_count=2),
+        lambda p: v.bbox(value, "f", p, text=True),
+        lambda p: v.weights(value, "f", p),
+    ]
+    for check in checks:
+        p = []
+        out = check(p)
+        assert (out is None) == bool(p) or (out is None and not p)
+        assert all(q["field"].startswith("f") and q["message"] for q in p)

@@ -44,6 +44,7 @@ from stressmap.formats.indicators import (
 )
 from stressmap.model import plate_outline
 from stressmap.plot.ensemble import ensemble_png
+from stressmap.plot.maps import ensemble_regime_png
 
 __all__ = ["bp", "run_calibration", "run_ensemble_job", "ENSEMBLE_FILE"]
 
@@ -334,7 +335,12 @@ def _load_result(path: Path):
     return ds
 
 
-def render_ensemble(path: Path, fmt: str, meta: dict, model, props) -> tuple[bytes, dict]:
+#: PNG pictures of an ensemble: the SHmax spread map, or the regime-probability maps.
+ENSEMBLE_PICTURES = ("spread", "regime")
+
+
+def render_ensemble(path: Path, fmt: str, meta: dict, model, props,
+                    picture: str = "spread") -> tuple[bytes, dict]:
     """Body and headers of a stored ensemble in ``fmt`` (runs on the compute pool)."""
 
     stem = f"stressmap-{meta['model_id'][:8]}-ensemble"
@@ -346,7 +352,11 @@ def render_ensemble(path: Path, fmt: str, meta: dict, model, props) -> tuple[byt
     if fmt == "png":
         caption = (f"Model {meta['model_id']} - {meta.get('model_name')} - built "
                    f"{meta.get('build_time')}; {extra['members']} members, seed {extra['seed']}")
-        png = ensemble_png(ds, plate_outline(model), caption=caption)
+        if picture == "regime":
+            png = ensemble_regime_png(ds, plate_outline(model), caption=caption)
+            stem += "-regime"
+        else:
+            png = ensemble_png(ds, plate_outline(model), caption=caption)
         return png, {"Content-Disposition": f'inline; filename="{stem}.png"'}
     flat = flatten_percentiles(ds)
     doc_meta = {**meta, **extra}
@@ -365,6 +375,10 @@ def get_ensemble(model_id: str, ensemble_id: str):
     if fmt not in ("geojson", "netcdf", "png"):
         raise InputError("format must be one of geojson, netcdf, png",
                          [problem(f"unknown format {fmt[:20]!r}", field="format")])
+    picture = request.args.get("picture", "spread").lower()
+    if picture not in ENSEMBLE_PICTURES:
+        raise InputError("picture must be one of " + ", ".join(ENSEMBLE_PICTURES),
+                         [problem(f"unknown picture {picture[:20]!r}", field="picture")])
     store = get_store()
     job = store.job(ensemble_id)
     result = job.get("result") or {}
@@ -387,6 +401,6 @@ def get_ensemble(model_id: str, ensemble_id: str):
     props = json.loads(props_path.read_text(encoding="utf-8")) if props_path.is_file() else None
     model = store.load(model_id) if fmt == "png" else None
     meta = output_meta(store.meta(model_id))
-    body, headers = run_limited(render_ensemble, path, fmt, meta, model, props)
+    body, headers = run_limited(render_ensemble, path, fmt, meta, model, props, picture)
     return current_app.response_class(body, status=200, content_type=MIMETYPES[fmt],
                                       headers=headers)

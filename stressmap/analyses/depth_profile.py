@@ -16,6 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from stressmap.analyses import screening as sc
+from stressmap import validate
 from stressmap.errors import InputError, problem
 
 __all__ = ["DepthProfile", "depth_grid", "stress_profile", "MAX_DEPTHS", "MAX_PROFILE_SAMPLES"]
@@ -48,24 +49,23 @@ def depth_grid(max_depth_km, step_km=None, count=None) -> np.ndarray:
     >>> depth_grid(-1.0, count=5)
     Traceback (most recent call last):
     ...
-    stressmap.errors.InputError: max_depth_km must be > 0 and <= 40 km, got -1.0
+    stressmap.errors.InputError: max_depth_km must be > 0, got -1
     """
-    z = float(max_depth_km)
-    if not np.isfinite(z) or z <= 0.0 or z > 40.0:
-        msg = f"max_depth_km must be > 0 and <= 40 km, got {z!r}"
-        raise InputError(msg, [problem(msg, field="max_depth_km")])
-    if step_km is not None:
-        step = float(step_km)
-        if not np.isfinite(step) or step <= 0.0 or z / step > MAX_DEPTHS:
-            raise InputError(f"step_km must be > 0 and give at most {MAX_DEPTHS} depths",
-                             [problem(f"got {step_km!r}", field="step_km")])
-        n = int(np.floor(z / step + 1e-9))
-        grid = np.arange(n + 1) * step
+    problems: list = []
+    z = validate.number(max_depth_km, "max_depth_km", problems, low=0.0, low_inclusive=False,
+                        high=40.0)
+    step = None if step_km is None else validate.number(step_km, "step_km", problems, low=0.0,
+                                                        low_inclusive=False)
+    n = 101 if count is None else validate.number(count, "count", problems, low=2,
+                                                  high=MAX_DEPTHS, integer=True)
+    validate.raise_problems(problems)
+    if step is not None:
+        if z / step > MAX_DEPTHS:
+            validate.raise_problems([problem(f"step_km {step:g} gives more than {MAX_DEPTHS} "
+                                             "depths", field="step_km")])
+        k = int(np.floor(z / step + 1e-9))
+        grid = np.arange(k + 1) * step
         return grid if np.isclose(grid[-1], z) else np.append(grid, z)
-    n = 101 if count is None else int(count)
-    if n < 2 or n > MAX_DEPTHS:
-        raise InputError(f"count must be in [2, {MAX_DEPTHS}]",
-                         [problem(f"got {count!r}", field="count")])
     return np.linspace(0.0, z, n)
 
 

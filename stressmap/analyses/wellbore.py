@@ -45,6 +45,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from stressmap import validate
 from stressmap.errors import InputError, problem
 
 __all__ = [
@@ -111,26 +112,20 @@ def rock_strength(ucs_mpa, internal_friction=0.6, tensile_mpa=0.0, poisson=0.25,
     >>> rock_strength(0.0)
     Traceback (most recent call last):
     ...
-    stressmap.errors.InputError: ucs_mpa must be > 0, got 0.0
+    stressmap.errors.InputError: ucs_mpa must be > 0, got 0
     """
-    checks = (("ucs_mpa", ucs_mpa, 0.0, False, None), ("internal_friction", internal_friction,
-              0.0, True, 5.0), ("tensile_mpa", tensile_mpa, 0.0, True, None),
-              ("poisson", poisson, 0.0, True, 0.5))
-    problems, values = [], {}
-    for name, value, lo, lo_closed, hi in checks:
-        try:
-            v = float(value)
-        except (TypeError, ValueError):
-            problems.append(problem(f"{name} must be a number, got {value!r}", field=prefix + name))
-            continue
-        ok = np.isfinite(v) and (v >= lo if lo_closed else v > lo) and (hi is None or v < hi)
-        if not ok:
-            rng = f"{'>=' if lo_closed else '>'} {lo:g}" + ("" if hi is None else f" and < {hi:g}")
-            problems.append(problem(f"{name} must be {rng}, got {v!r}", field=prefix + name))
-        values[name] = v
-    if problems:
-        raise InputError(problems[0]["message"] if len(problems) == 1 else
-                         "rock strength is not usable", problems)
+    problems: list = []
+    values = {
+        "ucs_mpa": validate.number(ucs_mpa, prefix + "ucs_mpa", problems, low=0.0,
+                                   low_inclusive=False, required="rock strength"),
+        "internal_friction": validate.number(internal_friction, prefix + "internal_friction",
+                                             problems, low=0.0, high=5.0),
+        "tensile_mpa": validate.number(tensile_mpa, prefix + "tensile_mpa", problems, low=0.0),
+        "poisson": validate.number(poisson, prefix + "poisson", problems, low=0.0, high=0.5,
+                                   high_inclusive=False),
+    }
+    validate.raise_problems(problems, None if len(problems) == 1 else
+                            "rock strength is not usable")
     return RockStrength(**values)
 
 

@@ -43,6 +43,7 @@ from stressmap.analyses.wellbore import (
     shmax_from_breakout_mpa,
 )
 from stressmap.constants import CAUTION
+from stressmap import validate
 from stressmap.errors import InputError, problem
 from stressmap.units import check_units
 
@@ -59,9 +60,8 @@ __all__ = [
     "run_breakout",
 ]
 
-#: Said beside every well result, after the caution.
-WELL_NOTE = ("A screening estimate, not a well design: defer to site-specific studies, local codes "
-             "and licensed practice.")
+#: Said beside every well result, after the caution: only what the caution does not already say.
+WELL_NOTE = "This is not a well design."
 
 _OWN_KEYS = {"units", "rock", "well", "window", "breakout", "profile", "stress_path"}
 _SUB_KEYS = {
@@ -85,21 +85,10 @@ class WellRequest:
 
 def _number(doc: dict, key: str, where: str, problems: list, *, lo=None, hi=None,
             lo_open=False, default=None):
-    value = doc.get(key, default)
-    if value is None:
-        return None
-    if isinstance(value, bool) or not isinstance(value, (int, float)):
-        problems.append(problem(f"must be a number, got {value!r}", field=f"{where}.{key}"))
-        return None
-    v = float(value)
-    if not math.isfinite(v) or (lo is not None and (v <= lo if lo_open else v < lo)) or \
-            (hi is not None and v > hi):
-        rng = " and ".join(s for s in (
-            None if lo is None else f"{'>' if lo_open else '>='} {lo:g}",
-            None if hi is None else f"<= {hi:g}") if s)
-        problems.append(problem(f"must be {rng}, got {value!r}", field=f"{where}.{key}"))
-        return None
-    return v
+    """One optional number of a request part, checked by :func:`stressmap.validate.number`."""
+    return validate.number(doc.get(key, default if default is not None else validate.MISSING),
+                           f"{where}.{key}", problems, low=lo, high=hi,
+                           low_inclusive=not lo_open)
 
 
 def _part(doc: dict, name: str, problems: list) -> dict | None:
@@ -107,10 +96,10 @@ def _part(doc: dict, name: str, problems: list) -> dict | None:
     if raw is None:
         return None
     if not isinstance(raw, dict):
-        problems.append(problem(f"must be an object, got {type(raw).__name__}", field=name))
+        problems.append(problem(f"{name} must be an object, got {validate.describe(raw)}",
+                                field=name))
         return None
-    for key in sorted(set(raw) - _SUB_KEYS[name]):
-        problems.append(problem(f"unknown field {key!r}", field=f"{name}.{key}"))
+    validate.unknown_fields(raw, sorted(_SUB_KEYS[name]), problems, prefix=name)
     return raw
 
 
@@ -126,8 +115,8 @@ def parse_well_request(doc: dict) -> WellRequest:
     >>> parse_well_request({"site": [5, 50], "depth_km": 3, "well": {"inclination_deg": 95}})
     Traceback (most recent call last):
     ...
-    stressmap.errors.InputError: well.inclination_deg: must be >= 0 and <= 90, got 95
-      - field well.inclination_deg: must be >= 0 and <= 90, got 95
+    stressmap.errors.InputError: well.inclination_deg: inclination_deg must be <= 90, got 95
+      - field well.inclination_deg: inclination_deg must be <= 90, got 95
     """
     if not isinstance(doc, dict):
         raise InputError("the request must be a JSON object",
@@ -149,7 +138,8 @@ def parse_well_request(doc: dict) -> WellRequest:
     rock = parts["rock"]
     if rock is not None:
         try:
-            out["rock"] = rock_strength(rock.get("ucs_mpa"), rock.get("internal_friction", 0.6),
+            out["rock"] = rock_strength(rock.get("ucs_mpa", validate.MISSING),
+                                        rock.get("internal_friction", 0.6),
                                         rock.get("tensile_mpa", 0.0), rock.get("poisson", 0.25),
                                         prefix="rock.")
         except InputError as exc:
@@ -166,10 +156,9 @@ def parse_well_request(doc: dict) -> WellRequest:
                                          default=5.0),
                      "max_breakout_width_deg": _number(win, "max_breakout_width_deg", "window",
                                                        problems, lo=0.0, hi=179.0, default=0.0),
-                     "upper_bound": win.get("upper_bound", "least")}
-    if out["window"]["upper_bound"] not in ("least", "shmin"):
-        problems.append(problem("must be least (breakdown and Shmin) or shmin",
-                                field="window.upper_bound"))
+                     "upper_bound": validate.choice(win.get("upper_bound", "least"),
+                                                    ("least", "shmin"), "window.upper_bound",
+                                                    problems) or "least"}
     if parts["breakout"] is not None:
         b = parts["breakout"]
         out["breakout"] = {
@@ -177,9 +166,9 @@ def parse_well_request(doc: dict) -> WellRequest:
                                  hi=179.0),
             "mud_pressure_mpa": _number(b, "mud_pressure_mpa", "breakout", problems, lo=0.0,
                                         hi=1000.0)}
-        if out["breakout"]["width_deg"] is None and "width_deg" not in b:
-            problems.append(problem("required: the observed breakout width in degrees",
-                                    field="breakout.width_deg"))
+        if "width_deg" not in b:
+            problems.append(problem("missing 'width_deg' (the observed breakout width in "
+                                    "degrees)", field="breakout.width_deg"))
         if "rock" not in out and rock is None:
             problems.append(problem("a breakout constraint needs the rock strength (rock.ucs_mpa)",
                                     field="rock.ucs_mpa"))

@@ -56,10 +56,14 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return int(handler(args) or 0)
     except InputError as exc:
+        only = exc.problems[0] if len(exc.problems) == 1 else None
+        if only is not None and only["message"] == exc.message:  # say where, on one line
+            where = ", ".join(f"{k} {only[k]}" for k in ("row", "field")
+                              if only.get(k) is not None)
+            print(f"error: {exc.message}" + (f" ({where})" if where else ""), file=sys.stderr)
+            return 2
         print(f"error: {exc.message}", file=sys.stderr)
         for p in exc.problems:
-            if p["message"] == exc.message and len(exc.problems) == 1:
-                continue
             where = ", ".join(f"{k} {p[k]}" for k in ("row", "field") if p.get(k) is not None)
             print(f"  - {where + ': ' if where else ''}{p['message']}", file=sys.stderr)
         return 2

@@ -6,7 +6,7 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
-from stressmap import CAUTION
+from stressmap import CAUTION, validate
 from stressmap.analyses.calibrate import calibrate
 from stressmap.analyses.ensemble import (
     ensemble_grid,
@@ -22,6 +22,7 @@ from stressmap.io.modeldir import read_model
 from stressmap.io.points import read_points
 from stressmap.model import plate_outline
 from stressmap.plot.ensemble import ensemble_png
+from stressmap.plot.maps import ensemble_regime_png
 
 __all__ = ["register", "parse_bounds", "parse_vary", "parse_percentiles", "load_config"]
 
@@ -37,22 +38,23 @@ def parse_bounds(text: str | None) -> dict:
     Traceback (most recent call last):
     ...
     stressmap.errors.InputError: cannot read bounds 'collision=3': use group=low:high,...
-      - field --bounds: expected group=low:high pairs separated by commas
+      - field --bounds: cannot read 'collision=3': expected group=low:high pairs separated by commas (--bounds must be a pair LOW:HIGH of finite numbers, got the string '3')
     """
     out: dict = {}
+    problems: list = []
     for item in (text or "").split(","):
         if not item.strip():
             continue
         name, sep, rng = item.partition("=")
-        lo, sep2, hi = rng.partition(":")
-        try:
-            if not (sep and sep2 and name.strip()):
-                raise ValueError
-            out[name.strip()] = [float(lo), float(hi)]
-        except ValueError:
-            raise InputError(f"cannot read bounds {item.strip()!r}: use group=low:high,...",
-                             [problem("expected group=low:high pairs separated by commas",
-                                      field="--bounds")]) from None
+        found: list = []
+        pair = validate.number_pair(rng, "--bounds", found, text=":") if sep else None
+        if not name.strip() or pair is None:
+            problems.append(problem(f"cannot read {item.strip()!r}: expected group=low:high pairs "
+                                    "separated by commas" + (f" ({found[0]['message']})"
+                                                             if found else ""), field="--bounds"))
+            continue
+        out[name.strip()] = list(pair)
+    validate.raise_problems(problems, f"cannot read bounds {text!r}: use group=low:high,...")
     return out
 
 
@@ -75,12 +77,11 @@ def parse_vary(items: list[str] | None) -> dict:
         target, sep, rest = item.partition("=")
         parts = rest.split(":")
         group, _, parameter = target.strip().partition(".")
-        try:
-            if not (sep and group and len(parts) == 3):
-                raise ValueError
-            kind = parts[0].strip()
-            a, b = float(parts[1]), float(parts[2])
-        except ValueError:
+        found: list = []
+        a, b = ((validate.number(v, "--vary", found, text=True, required=True)
+                 for v in parts[1:]) if len(parts) == 3 else (None, None))
+        kind = parts[0].strip()
+        if not (sep and group and len(parts) == 3) or found:
             raise InputError(f"cannot read --vary {item!r}: use GROUP[.PARAMETER]=KIND:A:B",
                              [problem("e.g. collision=log-uniform:0.3:3 or "
                                       "subduction.pull_fraction=uniform:0.06:0.24",
@@ -100,13 +101,19 @@ def parse_percentiles(text: str) -> list[float]:
     --------
     >>> parse_percentiles("10, 50,90")
     [10.0, 50.0, 90.0]
+    >>> parse_percentiles("5,x,150")
+    Traceback (most recent call last):
+    ...
+    stressmap.errors.InputError: cannot read percentiles '5,x,150': use numbers from 0 to 100 separated by commas
+      - field --percentiles: percentile must be a number, got the string 'x'
+      - field --percentiles: percentile must be <= 100, got 150
     """
-    try:
-        return [float(v) for v in text.split(",") if v.strip()]
-    except ValueError:
-        raise InputError(f"cannot read percentiles {text!r}",
-                         [problem("expected numbers separated by commas",
-                                  field="--percentiles")]) from None
+    problems: list = []
+    out = [validate.number(v, "--percentiles", problems, name="percentile", text=True, low=0.0,
+                           high=100.0) for v in text.split(",") if v.strip()]
+    validate.raise_problems(problems, f"cannot read percentiles {text!r}: use numbers from 0 to "
+                            "100 separated by commas")
+    return out
 
 
 def load_config(path: str | None) -> dict:
@@ -160,10 +167,15 @@ def _cmd_calibrate(args) -> int:
         "confidence": args.confidence if args.confidence is not None else config.get("confidence", 0.95),
         "seed": args.seed if args.seed is not None else config.get("seed", 0),
     }
+    problems: list = []
     for key in ("n_bootstrap", "n_random", "n_starts"):
-        if int(settings[key]) < (1 if key == "n_starts" else 0):
-            raise InputError(f"{key} must be a non-negative count",
-                             [problem(f"got {settings[key]}", field=key)])
+        settings[key] = validate.number(settings[key], key, problems, integer=True,
+                                        low=1 if key == "n_starts" else 0)
+    settings["confidence"] = validate.number(settings["confidence"], "confidence", problems,
+                                             low=0.0, high=1.0, low_inclusive=False,
+                                             high_inclusive=False)
+    settings["seed"] = validate.number(settings["seed"], "seed", problems, integer=True, low=0)
+    validate.raise_problems(problems, "invalid calibration settings")
     model = _read_model(args.model_dir)
     indicators = read_indicators(args.indicators, skip_bad=args.skip_bad)
     skipped = indicators.attrs.get("skipped") or []
@@ -249,11 +261,14 @@ def _cmd_ensemble(args) -> int:
     meta = {"caution": CAUTION, "model_name": model.summary.get("name", ""),
             "build_time": model.summary.get("build_time", ""), "members": args.members,
             "seed": seed, "distributions": ds.attrs.get("distributions", "{}")}
+    caption = (f"Model {meta['model_name']} built {meta['build_time']}; {args.members} members, "
+               f"seed {seed}")
+    if args.regime_png:
+        Path(args.regime_png).write_bytes(
+            ensemble_regime_png(ds, plate_outline(model), caption=caption))
     if fmt == "nc":
         out.write_bytes(export.netcdf_bytes(ds, meta))
     elif fmt == "png":
-        caption = (f"Model {meta['model_name']} built {meta['build_time']}; {args.members} members, "
-                   f"seed {seed}")
         out.write_bytes(ensemble_png(ds, plate_outline(model), caption=caption))
     else:
         flat = flatten_percentiles(ds)
@@ -263,7 +278,8 @@ def _cmd_ensemble(args) -> int:
     n_in = int(ds["inside"].values.astype(bool).sum())
     where = (f"{ds.sizes['point']} points" if "point" in ds.dims
              else f"a {ds.sizes['lat']} x {ds.sizes['lon']} grid")
-    print(f"ensemble of {args.members} members over {where} ({n_in} inside the plate) -> {out}")
+    print(f"ensemble of {args.members} members over {where} ({n_in} inside the plate) -> {out}"
+          + (f"; regime probability map -> {args.regime_png}" if args.regime_png else ""))
     if ds.attrs.get("distributions_source", "given") != "given":
         print(f"note: distributions: {ds.attrs['distributions_source']}")
     print(f"note: {CAUTION}")
@@ -320,6 +336,8 @@ def register(sub) -> None:
     q.add_argument("--members", type=int, required=True, metavar="N", help="ensemble members")
     q.add_argument("-o", "--output", required=True, metavar="OUT",
                    help="output file: .nc (CF netCDF), .geojson or .png")
+    q.add_argument("--regime-png", metavar="FILE",
+                   help="also draw the probability of each faulting regime as a PNG map")
     q.add_argument("--vary", action="append", metavar="GROUP[.PARAM]=KIND:A:B",
                    help="distribution of a group's weight or parameter: uniform:LOW:HIGH, "
                         "log-uniform:LOW:HIGH, normal:MEAN:STD (repeatable)")

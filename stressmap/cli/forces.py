@@ -11,10 +11,10 @@ from __future__ import annotations
 
 import argparse
 import json
-import math
 import tomllib
 from pathlib import Path
 
+from stressmap import validate
 from stressmap.errors import InputError, problem
 from stressmap.physics import forces, thermal
 
@@ -22,17 +22,14 @@ __all__ = ["register", "calculate", "format_table"]
 
 
 def _number(lo: float | None = 0.0, hi: float | None = None, strict: bool = False):
+    """An argparse type: a finite number within [lo, hi] (lo exclusive when ``strict``)."""
+
     def parse(text: str) -> float:
-        try:
-            value = float(text)
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
-        if not math.isfinite(value):
-            raise argparse.ArgumentTypeError(f"must be finite, got {text!r}")
-        if lo is not None and (value <= lo if strict else value < lo):
-            raise argparse.ArgumentTypeError(f"must be {'>' if strict else '>='} {lo:g}, got {text}")
-        if hi is not None and value > hi:
-            raise argparse.ArgumentTypeError(f"must be <= {hi:g}, got {text}")
+        problems: list = []
+        value = validate.number(text, None, problems, text=True, required=True, low=lo, high=hi,
+                                low_inclusive=not strict)
+        if problems:  # argparse names the option in front of the message
+            raise argparse.ArgumentTypeError(problems[0]["message"])
         return value
 
     return parse

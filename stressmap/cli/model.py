@@ -5,7 +5,7 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
-from stressmap import CAUTION
+from stressmap import CAUTION, validate
 from stressmap.cli._progress import progress_bar
 from stressmap.errors import InputError, problem
 from stressmap.formats import export
@@ -17,8 +17,8 @@ from stressmap.model import build_model, predict_grid, predict_points
 __all__ = ["register", "parse_weights", "parse_bbox", "load_document"]
 
 
-def parse_weights(text: str | None) -> dict | None:
-    """Parse ``group=value,group=value`` into a dict.
+def parse_weights(text: str | None, option: str = "--weights") -> dict | None:
+    """Parse ``group=value,group=value`` (``group:value`` works too) into a dict.
 
     Examples
     --------
@@ -26,41 +26,33 @@ def parse_weights(text: str | None) -> dict | None:
     {'ridge': 1.5, 'subduction': 0.5}
     >>> parse_weights(None) is None
     True
+    >>> parse_weights("ridge=inf")
+    Traceback (most recent call last):
+    ...
+    stressmap.errors.InputError: cannot read 'ridge=inf' as group=value (value must be a finite number)
     """
-    if not text:
-        return None
-    out: dict = {}
-    for item in text.split(","):
-        name, sep, value = item.partition("=")
-        name = name.strip()
-        try:
-            if not sep or not name:
-                raise ValueError
-            out[name] = float(value)
-        except ValueError:
-            raise InputError(f"cannot read weight {item.strip()!r}: use group=value,...",
-                             [problem("expected group=value pairs separated by commas",
-                                      field="--weights")]) from None
+    problems: list = []
+    out = validate.weights_text(text, option, problems)
+    validate.raise_problems(problems)
     return out
 
 
-def parse_bbox(text: str) -> tuple[float, float, float, float]:
-    """Parse ``W,S,E,N`` in degrees.
+def parse_bbox(text: str, option: str = "--bbox") -> tuple[float, float, float, float]:
+    """Parse ``W,S,E,N`` in degrees (the box rule of :func:`stressmap.validate.bbox`).
 
     Examples
     --------
     >>> parse_bbox("-10,40,5.5,50")
     (-10.0, 40.0, 5.5, 50.0)
+    >>> parse_bbox("5,40,5,50")
+    Traceback (most recent call last):
+    ...
+    stressmap.errors.InputError: west 5 and east 5 must differ: the box has no width (-180, ..., 180, ... is the whole globe)
     """
-    parts = text.split(",")
-    try:
-        if len(parts) != 4:
-            raise ValueError
-        w, s, e, n = (float(p) for p in parts)
-    except ValueError:
-        raise InputError(f"cannot read bounding box {text!r}: use W,S,E,N in degrees",
-                         [problem("expected four numbers W,S,E,N", field="--bbox")]) from None
-    return w, s, e, n
+    problems: list = []
+    box = validate.bbox(text, option, problems, text=True)
+    validate.raise_problems(problems)
+    return box
 
 
 def load_document(path: str, params: str | None = None) -> dict:

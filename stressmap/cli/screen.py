@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from pathlib import Path
 
 from stressmap import validate
@@ -38,17 +39,17 @@ def parse_pair(text: str | None, option: str):
     --------
     >>> parse_pair("0.5,0.8", "--friction-range")
     [0.5, 0.8]
+    >>> parse_pair("0.8", "--friction-range")
+    Traceback (most recent call last):
+    ...
+    stressmap.errors.InputError: --friction-range must be a pair LOW,HIGH of finite numbers, got the string '0.8'
     """
     if text is None:
         return None
-    parts = text.split(",")
-    try:
-        if len(parts) != 2:
-            raise ValueError
-        return [float(parts[0]), float(parts[1])]
-    except ValueError:
-        raise InputError(f"cannot read {option} {text!r}: use LOW,HIGH",
-                         [problem("expected two numbers LOW,HIGH", field=option)]) from None
+    problems: list = []
+    pair = validate.number_pair(text, option, problems, text=",")
+    validate.raise_problems(problems)
+    return list(pair)
 
 
 def read_density_profile(path) -> dict:
@@ -194,18 +195,47 @@ def format_text(doc: dict) -> str:
     return "\n".join(lines)
 
 
+_FIELD = re.compile(r"\b(?:uncertainty\.)?([a-z][a-z0-9]*(?:_[a-z0-9]+)+)\b")
+
+
+def flag_words(text: str, flags: dict) -> str:
+    """Name command-line flags instead of request fields in a note or an error message.
+
+    Only snake_case words (and ``uncertainty.<field>`` paths) that are the destination of an
+    option are replaced, so ordinary words stay as they are.
+
+    Examples
+    --------
+    >>> flags = {"ensemble_members": "--ensemble-members", "samples": "--samples"}
+    >>> flag_words("give ensemble_members or uncertainty.ensemble_members; 200 samples", flags)
+    'give --ensemble-members or --ensemble-members; 200 samples'
+    """
+    return _FIELD.sub(lambda m: flags.get(m.group(1), m.group(0)), str(text))
+
+
+def _with_flags(exc: InputError, flags: dict) -> InputError:
+    """The same error with request fields named as the flags that set them."""
+    probs = [{**p, "message": flag_words(p["message"], flags),
+              **({"field": flag_words(p["field"], flags)} if p.get("field") else {})}
+             for p in exc.problems]
+    return InputError(flag_words(exc.message, flags), probs)
+
+
 def _run(args) -> int:
-
-    doc = build_request(args)
-    req = parse_request(doc)
-    model = model_info = None
-    if args.model:
-
-        model = read_model(args.model)
-        summary = getattr(model, "summary", {}) or {}
-        model_info = {"directory": str(args.model), "name": summary.get("name"),
-                      "build_time": summary.get("build_time")}
-    result = screen(req, model, model_info)
+    flags = getattr(args, "flag_names", {}) or {}
+    try:
+        doc = build_request(args)
+        req = parse_request(doc)
+        model = model_info = None
+        if args.model:
+            model = read_model(args.model)
+            summary = getattr(model, "summary", {}) or {}
+            model_info = {"directory": str(args.model), "name": summary.get("name"),
+                          "build_time": summary.get("build_time")}
+        result = screen(req, model, model_info)
+    except InputError as exc:
+        raise _with_flags(exc, flags) from None
+    result.notes[:] = [flag_words(n, flags) for n in result.notes]
     out = result_json(result)
     if args.csv:
         Path(args.csv).write_text(result_csv(result), encoding="utf-8")
@@ -306,4 +336,7 @@ def register(subparsers) -> None:
     g.add_argument("--map-png", metavar="FILE", help="write a map of traces coloured by margin")
     g.add_argument("--margins-png", metavar="FILE",
                    help="write each fault's cumulative margin curve over the samples")
-    p.set_defaults(handler=_run)
+    # option destinations -> their long flags, so notes and errors name what the user typed
+    flag_names = {a.dest: next(o for o in a.option_strings if o.startswith("--"))
+                  for a in p._actions if any(o.startswith("--") for o in a.option_strings)}
+    p.set_defaults(handler=_run, flag_names=flag_names)

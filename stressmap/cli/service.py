@@ -17,10 +17,11 @@ from stressmap_api.demo import ensure_demo, example_points, example_requests
 from stressmap_api.jobs import get_jobs
 from stressmap_api.store import get_store
 
-from stressmap import CAUTION
+from stressmap import CAUTION, validate
 from stressmap.cli._progress import progress_bar
 from stressmap.errors import InputError, StressmapError, problem
 from stressmap.formats import export
+from stressmap.geo.grid import MIN_SPACING_KM
 from stressmap.io.modeldir import write_model
 from stressmap.model import build_model, plate_outline, predict_grid
 from stressmap.plot.maps import shmax_map
@@ -36,7 +37,8 @@ _REPO_SERVER_CONFIG = Path(__file__).resolve().parents[2] / "config" / "server.t
 
 
 def load_server_config(path: str | None = None) -> dict:
-    """waitress settings: defaults < config/server.toml (or ``path`` / STRESSMAP_SERVER_CONFIG)."""
+    """waitress settings: defaults < config/server.toml (or ``path`` / STRESSMAP_SERVER_CONFIG)
+    < the STRESSMAP_PORT environment variable (command-line options win over all of them)."""
     cfg = dict(SERVER_DEFAULTS)
     explicit = path or os.environ.get("STRESSMAP_SERVER_CONFIG")
     file = Path(explicit) if explicit else _REPO_SERVER_CONFIG
@@ -50,6 +52,13 @@ def load_server_config(path: str | None = None) -> dict:
             raise InputError(f"{file.name} is not valid TOML: {exc}",
                              [problem(str(exc), field=str(file))]) from None
         cfg.update(data.get("server", data))
+    port = os.environ.get("STRESSMAP_PORT", "").strip()
+    if port:
+        if not port.isdigit() or int(port) > 65535:
+            raise InputError(f"STRESSMAP_PORT must be a port number 0-65535, got {port!r}",
+                             [problem("expected a whole number from 0 to 65535",
+                                      field="STRESSMAP_PORT")])
+        cfg["port"] = int(port)
     return cfg
 
 
@@ -66,8 +75,9 @@ def _cmd_serve(args) -> int:
         server_cfg["threads"] = args.threads
     overrides = {}
     if args.workers is not None:
-        if args.workers < 1:
-            raise InputError("--workers must be at least 1", [problem("at least 1", field="--workers")])
+        problems: list = []
+        validate.number(args.workers, "--workers", problems, integer=True, low=1)
+        validate.raise_problems(problems)
         overrides["JOB_WORKERS"] = args.workers
     if args.demo:
         overrides["LOAD_DEMO"] = True
@@ -123,9 +133,9 @@ def _cmd_serve(args) -> int:
 
 def _cmd_demo(args) -> int:
 
-    if not (args.spacing_km > 0 and math.isfinite(args.spacing_km)):
-        raise InputError("--spacing-km must be a positive number",
-                         [problem(f"got {args.spacing_km}", field="--spacing-km")])
+    problems: list = []
+    validate.number(args.spacing_km, "--spacing-km", problems, low=MIN_SPACING_KM)
+    validate.raise_problems(problems)
     out = Path(args.output)
     try:
         out.mkdir(parents=True, exist_ok=True)
@@ -183,7 +193,8 @@ def register(sub) -> None:
                     "settings come from config/service.toml and STRESSMAP_* environment "
                     "variables; server settings from config/server.toml; options here win.")
     p.add_argument("--host", help="address to listen on (default from config/server.toml: 127.0.0.1)")
-    p.add_argument("--port", type=int, help="port to listen on (default 8000; 0 picks a free port)")
+    p.add_argument("--port", type=int, help="port to listen on (default: STRESSMAP_PORT, else config/server.toml: "
+                        "8000; 0 picks a free port)")
     p.add_argument("--workers", type=int, metavar="N",
                    help="background build workers (processes; default JOB_WORKERS from config)")
     p.add_argument("--threads", type=int, metavar="N", help="request threads of the server")

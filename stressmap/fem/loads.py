@@ -4,7 +4,7 @@ Pure numpy core: nodal forces are returned as 3D vectors (n, 3) in newtons; :fun
 projects them on the nodal (east, north) frames (the radial part is carried by the radially rigid
 foundation and does no work). Positions are in metres.
 
-Sign conventions (DESIGN.md):
+Sign conventions (README, Conventions):
 
 * A boundary ring is traversed with the plate interior on the left (seen from outside the sphere,
   or from +z in planar mode). For a boundary edge with unit tangent ``t`` and outward-pointing

@@ -23,11 +23,9 @@ from stressmap.errors import InputError
 from stressmap.formats.faults import faults_from_geojson
 from stressmap.formats.indicators import indicators_from_geojson
 
-__all__ = ["CAUTION_SUFFIX", "PLANE_FIELDS", "decode_geojson_parts", "parse_request_json", "result_csv", "result_geojson",
+__all__ = ["PLANE_FIELDS", "decode_geojson_parts", "parse_request_json", "result_csv", "result_geojson",
            "result_json"]
 
-#: Appended wherever the caution is printed in running text.
-CAUTION_SUFFIX = "Follow local codes and licensed practice."
 
 #: Per-plane fields of the JSON/CSV outputs, in order.
 PLANE_FIELDS = (
@@ -140,7 +138,7 @@ def _fault_summary(result: ScreenResult) -> list[dict]:
 def result_json(result: ScreenResult) -> dict:
     """The JSON document of a screening (the CLI's ``--json`` and the service's answer)."""
     site = dict(result.site)
-    out = {"caution": f"{CAUTION} {CAUTION_SUFFIX}"}
+    out = {"caution": CAUTION}
     out["site"] = {"lon": site.pop("lon"), "lat": site.pop("lat")}
     out.update(site)
     if result.model_info:

@@ -188,8 +188,11 @@ def polygon_mask(lon, lat, polygon, *, arcs: str = "lonlat") -> np.ndarray:
     lon, lat = np.broadcast_arrays(np.asarray(lon, dtype=float), np.asarray(lat, dtype=float))
     if arcs == "lonlat":
         inside = np.zeros(lon.shape, dtype=bool)
+        x0, y0, x1, y1 = polygon.bounds
         for shift in (0.0, -360.0, 360.0):
-            inside |= shapely.contains_xy(polygon, lon + shift, lat)
+            x = lon + shift
+            near = ~inside & (x >= x0) & (x <= x1) & (lat >= y0) & (lat <= y1)  # bounds first
+            inside[near] = shapely.contains_xy(polygon, x[near], lat[near])
         return inside
     if arcs != "great_circle":
         raise ValueError(f"arcs must be 'lonlat' or 'great_circle', got {arcs!r}")
@@ -205,7 +208,10 @@ def polygon_mask(lon, lat, polygon, *, arcs: str = "lonlat") -> np.ndarray:
                          [problem("the ring must lie within 89 degrees of its centre",
                                   field="polygon")])
     gx, gy = sphere.gnomonic_forward(ring_xyz, centre)
-    x, y = sphere.gnomonic_forward(sphere.lonlat_to_xyz(lon, lat), centre)
-    inside = shapely.contains_xy(shapely.Polygon(np.column_stack([gx, gy])),
-                                 np.nan_to_num(x, nan=np.inf), np.nan_to_num(y, nan=np.inf))
-    return np.asarray(inside, dtype=bool).reshape(lon.shape)
+    xyz = sphere.lonlat_to_xyz(lon, lat)
+    cap = np.cos(np.max(sphere.angle_between(ring_xyz, centre)))
+    near = xyz @ centre >= cap - 1e-12  # points beyond the ring's cap are outside
+    x, y = sphere.gnomonic_forward(xyz[near], centre)
+    inside = np.zeros(lon.shape, dtype=bool)
+    inside[near] = shapely.contains_xy(shapely.Polygon(np.column_stack([gx, gy])), x, y)
+    return inside

@@ -5,7 +5,7 @@ Pure numpy, vectorised over any array shape; one code path for a point and a mil
 Inputs are the horizontal components of the *tectonic* stress in the local (east, north) frame,
 **compression positive**, in any consistent unit (outputs carry the same unit): ``s_ee`` (east-east),
 ``s_nn`` (north-north) and ``s_en`` (east-north). The vertical tectonic stress is zero by
-construction (DESIGN.md), so the third principal stress is 0 and the regime follows Anderson:
+construction (README, Conventions), so the third principal stress is 0 and the regime follows Anderson:
 both horizontal principal stresses compressive -> reverse; one compressive, one tensile ->
 strike-slip; both tensile -> normal.
 """

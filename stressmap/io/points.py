@@ -9,6 +9,7 @@ from pathlib import Path
 
 import numpy as np
 
+from stressmap import validate
 from stressmap.errors import InputError, problem
 
 __all__ = ["read_points", "points_from_geojson"]
@@ -16,15 +17,9 @@ __all__ = ["read_points", "points_from_geojson"]
 
 def _check_lonlat(lon, lat, first_row: int = 1) -> list[dict]:
     """Problems for non-finite or out-of-range coordinates (rows numbered from ``first_row``)."""
-    problems = []
-    for name, values, limit in (("lon", lon, 180.0), ("lat", lat, 90.0)):
-        bad = ~np.isfinite(values) | (np.abs(values) > limit)
-        for i in np.flatnonzero(bad)[:50]:
-            problems.append(problem(
-                f"{name} must be a finite number in [-{limit:g}, {limit:g}], got {values[i]!r}",
-                field=name, row=int(i) + first_row))
-        if bad.sum() > 50:
-            problems.append(problem(f"{int(bad.sum()) - 50} more rows with bad {name}", field=name))
+    problems: list = []
+    validate.lonlat_arrays(lon, lat, ("lon", "lat"), problems, first_row=first_row,
+                           max_listed=50)
     return problems
 
 
@@ -65,8 +60,8 @@ def points_from_geojson(doc: dict, field: str = "points") -> tuple[np.ndarray, n
         p = feat.get("properties")
         props.append(p if isinstance(p, dict) else {})
     lon_a, lat_a = np.asarray(lon, dtype=float), np.asarray(lat, dtype=float)
-    for p in _check_lonlat(lon_a, lat_a, first_row=0):
-        problems.append(problem(p["message"], field=f"{field}.features[{p.get('row', 0)}].geometry"))
+    validate.lonlat_arrays(lon_a, lat_a, lambda i: f"{field}.features[{i}].geometry", problems,
+                           max_listed=50)
     if problems:
         raise InputError(f"{len(problems)} problem(s) in the point features", problems)
     return lon_a, lat_a, props

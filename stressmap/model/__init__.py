@@ -1,6 +1,7 @@
 """Plate models: documents, ring geometry, build stages, the built model and prediction.
 
-Submodules: :mod:`~stressmap.model.plate` (document parsing and ring geometry),
+Submodules: :mod:`~stressmap.model.plate` (document parsing), :mod:`~stressmap.model.ring` (ring
+geometry),
 :mod:`~stressmap.model.build` (the build stages), :mod:`~stressmap.model.built` (the built model),
 :mod:`~stressmap.model.predict` (weighted fields at query points).
 """

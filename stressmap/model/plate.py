@@ -13,28 +13,37 @@ A plate model document is a JSON object (README "Plate model document")::
 and raises :class:`stressmap.errors.ModelValidationError` listing them all; no other exception
 escapes it, whatever JSON value it is given.
 
-Geometry rules (stated in the README):
+Every value is checked with :mod:`stressmap.validate` (the package's one field validator), so
+a bad number reads the same here as in a fault file or a request. The geometry rules of the
+ring (great-circle arcs, 1 km joins, the smaller region, counter-clockwise, at most
+:data:`MAX_EXTENT_DEG` from the centre) live in :mod:`stressmap.model.ring`.
 
-* boundary arcs between consecutive vertices are great circles;
-* segment ends join within 1 km into one closed ring, in any order and either direction;
-* on a sphere a ring bounds two regions: the plate is the *smaller* one; the ring is stored
-  counter-clockwise seen from outside the sphere (plate interior on the left);
-* the plate must lie within :data:`MAX_EXTENT_DEG` degrees of arc of its centre (area
-  centroid), which keeps every projection used by the mesher and the checks well conditioned.
+:func:`parse_plate` runs named steps: :func:`_check_header` (name, description, unknown
+fields), :func:`_check_tables` (ridge_push, drag, sheet, mesh), :func:`_check_boundary` (each
+segment), :func:`_check_provinces`, :func:`_check_geometry` (ring, size, provinces on the plate)
+and :func:`_assemble` (the :class:`PlateModel`).
 """
 
 from __future__ import annotations
 
-import math
+from collections.abc import Mapping
 from dataclasses import dataclass, field
-from typing import Any, Mapping
+from typing import Any
 
 import numpy as np
+import shapely
 
+from stressmap import validate
 from stressmap.constants import EARTH_RADIUS_KM
 from stressmap.errors import ModelValidationError, problem
 from stressmap.geo import sphere
-from stressmap.io.plate_files import load_plate_files as _load
+from stressmap.model.ring import (
+    JOIN_TOLERANCE_KM,
+    MAX_EXTENT_DEG,
+    Ring,
+    close_ring,
+    fmt_lonlat,
+)
 from stressmap.physics.forces import load_defaults
 
 __all__ = [
@@ -47,21 +56,18 @@ __all__ = [
     "Province",
     "PlateModel",
     "parse_plate",
-    "load_plate_files",
     "plate_defaults",
 ]
 
 #: Boundary segment kinds (README "Conventions").
 KINDS = ("ridge", "subduction", "overriding", "collision", "transform", "free", "fixed")
 LITHOSPHERES = ("oceanic", "continental")
-#: Every point of the ring must lie within this angle (degrees of arc) of the plate centre.
-MAX_EXTENT_DEG = 80.0
-#: Segment ends closer than this join into the ring.
-JOIN_TOLERANCE_KM = 1.0
 #: Vertices closer than this (km) within one segment are duplicates.
 DUPLICATE_TOLERANCE_KM = 1e-3
 #: Largest mesh the document may ask for (estimated nodes).
 MAX_MESH_NODES = 3_000_000
+#: Longest plate, group and province name (characters).
+_MAX_NAME_CHARS = 200
 
 _TOP_FIELDS = ("name", "description", "boundary", "provinces", "ridge_push", "drag", "sheet", "mesh")
 
@@ -178,110 +184,14 @@ class PlateModel:
 
 
 # --------------------------------------------------------------------------------------------
-# small checkers
+# small checkers (thin uses of stressmap.validate)
 
 
-class _Problems:
-    def __init__(self):
-        self.items: list[dict] = []
+class _Problems(list):
+    """The problems of one document (a list of problem dicts, as :mod:`stressmap.validate` takes)."""
 
     def add(self, message: str, field: str | None = None) -> None:
-        self.items.append(problem(message, field=field))
-
-    def __len__(self):
-        return len(self.items)
-
-
-def _is_number(x) -> bool:
-    return isinstance(x, (int, float)) and not isinstance(x, bool)
-
-
-def _fmt(lon: float, lat: float) -> str:
-    return f"(lon {lon:.4f}, lat {lat:.4f})"
-
-
-def _number(value, where: str, probs: _Problems, low=None, high=None, low_inclusive=False,
-            high_inclusive=True, what="") -> float | None:
-    """Check one numeric value; return it as float or None (problem recorded)."""
-    if not _is_number(value):
-        probs.add(f"{what or 'value'} must be a number, got {_describe(value)}", where)
-        return None
-    v = float(value)
-    if not math.isfinite(v):
-        probs.add(f"{what or 'value'} must be finite, got {v}", where)
-        return None
-    if low is not None and (v < low or (v == low and not low_inclusive)):
-        op = ">=" if low_inclusive else ">"
-        probs.add(f"{what or 'value'} must be {op} {low:g}, got {v:g}", where)
-        return None
-    if high is not None and (v > high or (v == high and not high_inclusive)):
-        op = "<=" if high_inclusive else "<"
-        probs.add(f"{what or 'value'} must be {op} {high:g}, got {v:g}", where)
-        return None
-    return v
-
-
-def _describe(value) -> str:
-    if value is None:
-        return "null"
-    if isinstance(value, bool):
-        return "a boolean"
-    if isinstance(value, str):
-        s = value if len(value) <= 40 else value[:37] + "..."
-        return f"the string {s!r}"
-    if isinstance(value, dict):
-        return "an object"
-    if isinstance(value, (list, tuple)):
-        return "an array"
-    return type(value).__name__
-
-
-def _choice(value, choices, where: str, probs: _Problems, what: str) -> str | None:
-    if not isinstance(value, str) or value not in choices:
-        probs.add(f"unknown {what} {_describe(value) if not isinstance(value, str) else repr(value)}; "
-                  f"expected one of {', '.join(choices)}", where)
-        return None
-    return value
-
-
-def _position(pos, where: str, probs: _Problems) -> tuple[float, float] | None:
-    """One GeoJSON position [lon, lat(, alt)] in degrees."""
-    if not isinstance(pos, (list, tuple)) or len(pos) < 2 or len(pos) > 3:
-        probs.add(f"a position must be [lon, lat], got {_describe(pos)}"
-                  + (f" of length {len(pos)}" if isinstance(pos, (list, tuple)) else ""), where)
-        return None
-    lon, lat = pos[0], pos[1]
-    if not (_is_number(lon) and _is_number(lat)):
-        probs.add("longitude and latitude must be numbers", where)
-        return None
-    lon, lat = float(lon), float(lat)
-    if not (math.isfinite(lon) and math.isfinite(lat)):
-        probs.add(f"coordinates must be finite (no NaN or infinity), got [{lon}, {lat}]", where)
-        return None
-    bad = []
-    if not -180.0 <= lon <= 180.0:
-        bad.append(f"longitude {lon:g} outside [-180, 180]")
-    if not -90.0 <= lat <= 90.0:
-        bad.append(f"latitude {lat:g} outside [-90, 90]")
-    if bad:
-        probs.add("coordinates out of range: " + " and ".join(bad), where)
-        return None
-    return lon, lat
-
-
-def _positions(coords, where: str, probs: _Problems, min_count: int) -> np.ndarray | None:
-    if not isinstance(coords, (list, tuple)):
-        probs.add(f"coordinates must be an array of [lon, lat] positions, got {_describe(coords)}",
-                  where)
-        return None
-    n_before = len(probs)
-    out = [_position(p, f"{where}[{k}]", probs) for k, p in enumerate(coords)]
-    if len(probs) > n_before:
-        return None
-    if len(out) < min_count:
-        probs.add(f"needs at least {min_count} positions, got {len(out)}", where)
-        return None
-    return np.asarray(out, dtype=float).reshape(-1, 2)
+        self.append(problem(message, field=field))
 
 
 def _table(doc: dict, key: str, defaults: dict, spec: dict, probs: _Problems) -> dict:
@@ -290,90 +200,188 @@ def _table(doc: dict, key: str, defaults: dict, spec: dict, probs: _Problems) ->
     if raw is None:
         raw = {}
     if not isinstance(raw, dict):
-        probs.add(f"must be an object, got {_describe(raw)}", key)
+        probs.add(f"must be an object, got {validate.describe(raw)}", key)
         return dict(defaults)
     out = dict(defaults)
+    validate.unknown_fields(raw, spec, probs, prefix=key)
     for name, value in raw.items():
-        where = f"{key}.{name}"
-        if name not in spec:
-            probs.add(f"unknown field {name!r}; expected one of {', '.join(spec)}", where)
-            continue
-        got = spec[name](value, where)
-        if got is not None:
-            out[name] = got
+        if name in spec:
+            got = spec[name](value, f"{key}.{name}")
+            if got is not None:
+                out[name] = got
     return out
+
+
+def _check_header(document: dict, probs: _Problems) -> tuple[str | None, Any]:
+    """Unknown top-level fields, ``name`` and ``description``."""
+    validate.unknown_fields(document, _TOP_FIELDS, probs)
+    name = validate.text(document.get("name"), "name", probs, max_length=_MAX_NAME_CHARS)
+    description = document.get("description")
+    if description is not None:
+        validate.text(description, "description", probs, empty=True, strip=False,
+                      max_length=None)
+    return name, description
+
+
+def _check_tables(document: dict, probs: _Problems) -> tuple[dict, dict, dict, dict, str | None]:
+    """The ``ridge_push``, ``drag``, ``sheet`` and ``mesh`` tables with defaults filled, and the
+    ridge mode the segments are checked against."""
+    defaults = plate_defaults()
+
+    def num(low=None, high=None, low_inclusive=False, high_inclusive=True):
+        return lambda value, where: validate.number(
+            value, where, probs, low=low, high=high, low_inclusive=low_inclusive,
+            high_inclusive=high_inclusive)
+
+    def choice(options):
+        return lambda value, where: validate.choice(value, options, where, probs)
+
+    def text(value, where):
+        return validate.text(value, where, probs, strip=False)
+
+    ridge_push = _table(document, "ridge_push", defaults["ridge_push"], {
+        "mode": choice(("edge", "distributed")),
+        "age_source": choice(("provinces", "grid", "ridge_distance")),
+        "age_grid": text,
+        "age_variable": text,
+    }, probs)
+    if ridge_push.get("mode") == "distributed":
+        src = ridge_push.setdefault("age_source", "grid" if "age_grid" in ridge_push else "ridge_distance")
+        if src == "grid" and "age_grid" not in ridge_push:
+            probs.add("ridge_push.age_source 'grid' needs 'age_grid' (path of a netCDF age grid)",
+                      "ridge_push.age_grid")
+    ridge_mode = ("distributed_ridge_distance" if ridge_push.get("mode") == "distributed"
+                  and ridge_push.get("age_source") == "ridge_distance" else ridge_push.get("mode"))
+    drag = _table(document, "drag", defaults["drag"], {
+        "closure": choice(("torque_balance", "none")),
+        "viscosity_pa_s": num(0.0, 1e30),
+        "channel_km": num(0.0, 3000.0),
+    }, probs)
+    sheet = _table(document, "sheet", defaults["sheet"], {
+        "thickness_km": num(0.0, 1000.0),
+        "young_gpa": num(0.0, 1e4),
+        "poisson": num(0.0, 0.5, low_inclusive=True, high_inclusive=False),
+    }, probs)
+    mesh = _table(document, "mesh", defaults["mesh"], {
+        "edge_km": num(1.0, 2000.0, low_inclusive=True),
+        "grading": num(0.05, 2.0, low_inclusive=True),
+        "refinement": lambda v, w: _refinement(v, w, probs),
+    }, probs)
+    return ridge_push, drag, sheet, mesh, ridge_mode
 
 
 # --------------------------------------------------------------------------------------------
 # boundary
 
 
+def _check_boundary(boundary, probs: _Problems, ridge_mode: str | None):
+    """Every boundary feature; returns (coords per segment, normalised features, all good)."""
+    if boundary is None:
+        probs.add("missing 'boundary' (a GeoJSON FeatureCollection of LineString segments)",
+                  "boundary")
+    elif not isinstance(boundary, dict) or boundary.get("type") != "FeatureCollection":
+        probs.add("boundary must be a GeoJSON FeatureCollection of LineString features", "boundary")
+    elif not isinstance(boundary.get("features"), list):
+        probs.add(f"boundary.features must be an array, got "
+                  f"{validate.describe(boundary.get('features'))}", "boundary.features")
+    elif not boundary["features"]:
+        probs.add("the boundary needs at least one LineString feature", "boundary.features")
+    else:
+        n0 = len(probs)
+        checked = [_check_segment(i, feat, probs, ridge_mode)
+                   for i, feat in enumerate(boundary["features"])]
+        seg_coords = [c for c, _ in checked]
+        features = [f for _, f in checked]
+        return seg_coords, features, all(c is not None for c in seg_coords) and len(probs) == n0
+    return [], [], False
+
+
 def _check_segment(i: int, feat, probs: _Problems, ridge_mode: str | None):
     """Validate one boundary feature; returns (coords (k, 2) or None, normalised feature)."""
     base = f"boundary.features[{i}]"
     if not isinstance(feat, dict):
-        probs.add(f"each boundary feature must be a GeoJSON Feature object, got {_describe(feat)}",
-                  base)
+        probs.add(f"each boundary feature must be a GeoJSON Feature object, got "
+                  f"{validate.describe(feat)}", base)
         return None, None
     if feat.get("type") != "Feature":
-        probs.add(f"'type' must be 'Feature', got {_describe(feat.get('type'))}", f"{base}.type")
+        probs.add(f"'type' must be 'Feature', got {validate.describe(feat.get('type'))}",
+                  f"{base}.type")
+    coords = _segment_line(feat.get("geometry"), base, probs)
     props = feat.get("properties")
-    geom = feat.get("geometry")
-    coords = None
+    if not isinstance(props, dict):
+        probs.add(f"properties must be an object with at least 'kind', got "
+                  f"{validate.describe(props)}", f"{base}.properties")
+        return coords, None
+    out = _segment_properties(props, f"{base}.properties", probs, ridge_mode)
+    feat_out = {"type": "Feature", "properties": out,
+                "geometry": {"type": "LineString",
+                             "coordinates": coords.tolist() if coords is not None else None}}
+    return coords, feat_out
+
+
+def _segment_line(geom, base: str, probs: _Problems) -> np.ndarray | None:
+    """The LineString of one segment as (k, 2) lon/lat, without repeated or antipodal vertices."""
     if not isinstance(geom, dict):
-        probs.add(f"geometry must be a LineString object, got {_describe(geom)}", f"{base}.geometry")
-    elif geom.get("type") != "LineString":
-        probs.add(f"geometry type must be 'LineString', got {_describe(geom.get('type'))}"
+        probs.add(f"geometry must be a LineString object, got {validate.describe(geom)}",
+                  f"{base}.geometry")
+        return None
+    if geom.get("type") != "LineString":
+        probs.add(f"geometry type must be 'LineString', got {validate.describe(geom.get('type'))}"
                   + (" (split MultiLineStrings into one feature per line)"
                      if geom.get("type") == "MultiLineString" else ""), f"{base}.geometry.type")
-    else:
-        coords = _positions(geom.get("coordinates"), f"{base}.geometry.coordinates", probs, 2)
-        if coords is not None:
-            xyz = sphere.lonlat_to_xyz(coords[:, 0], coords[:, 1])
-            arc_km = EARTH_RADIUS_KM * sphere.angle_between(xyz[:-1], xyz[1:])
-            if arc_km.sum() < DUPLICATE_TOLERANCE_KM:
-                probs.add("zero-length segment: all its vertices coincide", f"{base}.geometry.coordinates")
-                coords = None
-            else:
-                dup = np.flatnonzero(arc_km < DUPLICATE_TOLERANCE_KM)
-                for k in dup[:5]:
-                    probs.add(f"duplicate vertex: position {k + 1} repeats position {k} at "
-                              f"{_fmt(*coords[k])}", f"{base}.geometry.coordinates[{k + 1}]")
-                longarc = np.flatnonzero(arc_km > EARTH_RADIUS_KM * np.radians(170.0))
-                for k in longarc[:5]:
-                    probs.add(f"the arc from position {k} to {k + 1} spans "
-                              f"{np.degrees(arc_km[k] / EARTH_RADIUS_KM):.1f} degrees; nearly "
-                              "antipodal vertices do not define a great circle, add vertices",
-                              f"{base}.geometry.coordinates[{k + 1}]")
-                if len(dup) or len(longarc):
-                    coords = None
-    if not isinstance(props, dict):
-        probs.add(f"properties must be an object with at least 'kind', got {_describe(props)}",
-                  f"{base}.properties")
-        return coords, None
-    pbase = f"{base}.properties"
+        return None
+    where = f"{base}.geometry.coordinates"
+    coords = validate.positions(geom.get("coordinates"), where, probs, min_count=2)
+    if coords is None:
+        return None
+    xyz = sphere.lonlat_to_xyz(coords[:, 0], coords[:, 1])
+    arc_km = EARTH_RADIUS_KM * sphere.angle_between(xyz[:-1], xyz[1:])
+    if arc_km.sum() < DUPLICATE_TOLERANCE_KM:
+        probs.add("zero-length segment: all its vertices coincide", where)
+        return None
+    dup = np.flatnonzero(arc_km < DUPLICATE_TOLERANCE_KM)
+    for k in dup[:5]:
+        probs.add(f"duplicate vertex: position {k + 1} repeats position {k} at "
+                  f"{fmt_lonlat(*coords[k])}", f"{where}[{k + 1}]")
+    longarc = np.flatnonzero(arc_km > EARTH_RADIUS_KM * np.radians(170.0))
+    for k in longarc[:5]:
+        probs.add(f"the arc from position {k} to {k + 1} spans "
+                  f"{np.degrees(arc_km[k] / EARTH_RADIUS_KM):.1f} degrees; nearly antipodal "
+                  "vertices do not define a great circle, add vertices", f"{where}[{k + 1}]")
+    return None if len(dup) or len(longarc) else coords
+
+
+def _segment_properties(props: dict, pbase: str, probs: _Problems, ridge_mode: str | None) -> dict:
+    """Kind, group, force and kind-specific parameters of one segment (normalised copy)."""
     out = dict(props)
     kind = props.get("kind")
-    if kind is None:
-        probs.add(f"missing 'kind'; expected one of {', '.join(KINDS)}", f"{pbase}.kind")
-    else:
-        kind = _choice(kind, KINDS, f"{pbase}.kind", probs, "kind")
-    group = props.get("group", kind)
-    if "group" in props and (not isinstance(group, str) or not group.strip()):
-        probs.add(f"group must be a non-empty string, got {_describe(group)}", f"{pbase}.group")
-    elif isinstance(group, str):
-        out["group"] = group.strip()
-    has_force = "force_n_per_m" in props and props["force_n_per_m"] is not None
+    kind = validate.choice(validate.MISSING if kind is None else kind, KINDS, f"{pbase}.kind",
+                           probs, required=True)
+    if "group" in props:
+        group = validate.text(props["group"], f"{pbase}.group", probs,
+                              max_length=_MAX_NAME_CHARS)
+        if group is not None:
+            out["group"] = group
+    elif kind is not None:
+        out["group"] = kind
+    has_force = props.get("force_n_per_m") is not None
     if has_force:
-        _number(props["force_n_per_m"], f"{pbase}.force_n_per_m", probs, low=-1e14, high=1e14,
-                low_inclusive=True, what="force_n_per_m")
+        validate.number(props["force_n_per_m"], f"{pbase}.force_n_per_m", probs, low=-1e14,
+                        high=1e14)
     for name, (low, high, incl) in _NUMERIC_PARAMS.items():
-        if name in props and props[name] is not None:
-            _number(props[name], f"{pbase}.{name}", probs, low=low, high=high, low_inclusive=incl,
-                    what=name)
-    if "sense" in props and props["sense"] is not None:
-        _choice(props["sense"], _SENSES, f"{pbase}.sense", probs, "transform sense")
-    given = {k for k, v in props.items() if v is not None}
+        if props.get(name) is not None:
+            validate.number(props[name], f"{pbase}.{name}", probs, low=low, high=high,
+                            low_inclusive=incl)
+    if props.get("sense") is not None:
+        validate.choice(props["sense"], _SENSES, f"{pbase}.sense", probs, name="transform sense")
+    _required_parameters(kind, {k for k, v in props.items() if v is not None}, has_force,
+                         pbase, probs, ridge_mode)
+    return out
+
+
+def _required_parameters(kind, given: set, has_force: bool, pbase: str, probs: _Problems,
+                         ridge_mode: str | None) -> None:
+    """The parameters each kind needs to compute its force (unless the force is given)."""
     if kind == "ridge":
         if ridge_mode == "distributed_ridge_distance" and "half_rate_mm_yr" not in given:
             probs.add("missing parameter: ridges need 'half_rate_mm_yr' when ridge_push.mode is "
@@ -390,156 +398,14 @@ def _check_segment(i: int, feat, probs: _Problems, ridge_mode: str | None):
     elif kind == "transform" and "sense" not in given:
         probs.add("missing parameter: a transform needs 'sense' (dextral or sinistral)",
                   f"{pbase}.sense")
-    feat_out = {"type": "Feature", "properties": out,
-                "geometry": {"type": "LineString",
-                             "coordinates": coords.tolist() if coords is not None else None}}
-    return coords, feat_out
-
-
-def _join_ring(seg_coords: list[np.ndarray], probs: _Problems):
-    """Chain segments into one ring. Returns list of (segment, forward) in ring order or None."""
-    from scipy.spatial import cKDTree
-
-    m = len(seg_coords)
-    ends_ll = np.array([[c[0], c[-1]] for c in seg_coords]).reshape(-1, 2)  # (2m, 2)
-    ends = sphere.lonlat_to_xyz(ends_ll[:, 0], ends_ll[:, 1])
-    tol = 2.0 * np.sin(JOIN_TOLERANCE_KM / EARTH_RADIUS_KM / 2.0)  # chord
-    tree = cKDTree(ends)
-    pairs = tree.query_pairs(tol, output_type="ndarray")
-    if m > 1:
-        pairs = pairs[pairs[:, 0] // 2 != pairs[:, 1] // 2]
-    partners: list[list[int]] = [[] for _ in range(2 * m)]
-    for p, q in pairs.tolist():
-        partners[p].append(q)
-        partners[q].append(p)
-    endname = ("start", "end")
-    ok = True
-    reported_gaps = set()
-    k = min(2 * m, 4)
-    dist, idx = tree.query(ends, k=k)
-    dist = np.atleast_2d(dist)
-    idx = np.atleast_2d(idx)
-    for p in range(2 * m):
-        seg = p // 2
-        where = f"boundary.features[{seg}].geometry.coordinates"
-        if len(partners[p]) == 0:
-            ok = False
-            cand = [(d, q) for d, q in zip(dist[p], idx[p]) if q < 2 * m and (q // 2 != seg or m == 1)
-                    and q != p]
-            if not cand:
-                probs.add(f"ring not closed: the {endname[p % 2]} of segment {seg} at "
-                          f"{_fmt(*ends_ll[p])} joins no other segment end", where)
-                continue
-            d, q = cand[0]
-            key = (min(p, q), max(p, q))
-            if key in reported_gaps:
-                continue
-            reported_gaps.add(key)
-            gap_km = EARTH_RADIUS_KM * float(sphere.angle_between(ends[p], ends[q]))
-            probs.add(f"ring not closed: gap of {gap_km:.1f} km between the {endname[p % 2]} of "
-                      f"segment {seg} at {_fmt(*ends_ll[p])} and the {endname[q % 2]} of segment "
-                      f"{q // 2} at {_fmt(*ends_ll[q])}; segment ends must join within "
-                      f"{JOIN_TOLERANCE_KM:g} km", where)
-        elif len(partners[p]) > 1:
-            ok = False
-            others = ", ".join(f"{endname[q % 2]} of segment {q // 2}" for q in partners[p])
-            probs.add(f"the boundary branches: the {endname[p % 2]} of segment {seg} at "
-                      f"{_fmt(*ends_ll[p])} meets {len(partners[p])} other segment ends ({others}); "
-                      "the boundary must be one simple ring", where)
-    if not ok:
-        return None
-    order = [(0, True)]
-    visited = {0}
-    cur = 1  # the end of segment 0
-    for _ in range(m):
-        q = partners[cur][0]
-        seg = q // 2
-        if seg == 0:
-            break
-        if seg in visited:  # pragma: no cover - impossible with one partner per end
-            break
-        visited.add(seg)
-        order.append((seg, q % 2 == 0))
-        cur = q ^ 1
-    if len(visited) < m:
-        rest = sorted(set(range(m)) - visited)
-        shown = ", ".join(map(str, rest[:20])) + (" ..." if len(rest) > 20 else "")
-        probs.add(f"the boundary forms more than one closed ring: segments {shown} are not "
-                  "connected to the ring through segment 0; a plate has exactly one ring",
-                  "boundary.features")
-        return None
-    return order
-
-
-def _build_ring(order, seg_coords):
-    parts, starts, lengths = [], {}, {}
-    offset = 0
-    for seg, fwd in order:
-        c = seg_coords[seg] if fwd else seg_coords[seg][::-1]
-        parts.append(c[:-1])
-        starts[seg] = offset
-        lengths[seg] = len(c) - 1
-        offset += len(c) - 1
-    ring = np.concatenate(parts, axis=0)
-    n = len(ring)
-    arc_segment = np.empty(n, dtype=np.int64)
-    for seg in starts:
-        arc_segment[starts[seg]: starts[seg] + lengths[seg]] = seg
-    bounds = {seg: (starts[seg], (starts[seg] + lengths[seg]) % n) for seg in starts}
-    return ring, arc_segment, bounds
-
-
-def _self_intersections(ring_xyz, arc_segment, centre, probs: _Problems) -> None:
-    """Report pairs of crossing arcs (great circles are straight in the gnomonic plane)."""
-    import shapely
-
-    x, y = sphere.gnomonic_forward(ring_xyz, centre)
-    pts = np.column_stack([x, y])
-    n = len(pts)
-    nxt = np.roll(pts, -1, axis=0)
-    lines = shapely.linestrings(np.stack([pts, nxt], axis=1))
-    tree = shapely.STRtree(lines)
-    i, j = tree.query(lines, predicate="intersects")
-    keep = i < j
-    i, j = i[keep], j[keep]
-    adjacent = (j == i + 1) | ((i == 0) & (j == n - 1))
-    # adjacent arcs share a vertex; they only offend if they overlap (the ring doubles back)
-    if adjacent.any():
-        inter = shapely.intersection(lines[i[adjacent]], lines[j[adjacent]])
-        bad_adj = shapely.get_type_id(inter) != 0  # not a single point
-        adjacent[np.flatnonzero(adjacent)[~bad_adj]] = True
-        offend = ~adjacent
-        offend[np.flatnonzero(adjacent)[bad_adj]] = True
-    else:
-        offend = np.ones(len(i), dtype=bool)
-    i, j = i[offend], j[offend]
-    if not len(i):
-        return
-    inter = shapely.intersection(lines[i], lines[j])
-    cx, cy = shapely.get_coordinates(shapely.centroid(inter)).T
-    ll = np.column_stack(sphere.xyz_to_lonlat(sphere.gnomonic_inverse(cx, cy, centre)))
-    seen = set()
-    for a, b, (lon, lat) in zip(i.tolist(), j.tolist(), ll.tolist()):
-        sa, sb = int(arc_segment[a]), int(arc_segment[b])
-        key = (min(sa, sb), max(sa, sb))
-        if key in seen:
-            continue
-        seen.add(key)
-        if len(seen) > 20:
-            probs.add("the boundary ring crosses itself in more places than listed", "boundary")
-            break
-        what = (f"segment {sa} crosses itself" if sa == sb
-                else f"segment {key[0]} crosses segment {key[1]}")
-        probs.add(f"self-intersecting ring: {what} near {_fmt(lon, lat)}",
-                  f"boundary.features[{key[0]}].geometry.coordinates")
 
 
 # --------------------------------------------------------------------------------------------
-# provinces, tables
+# provinces, refinement
 
 
 def _check_provinces(raw, probs: _Problems):
-    """Returns (list of (ring (k, 2), props dict), normalised FeatureCollection)."""
+    """Returns (list of (index, ring (k, 2), props dict), normalised FeatureCollection)."""
     if raw is None:
         return [], None
     feats = raw.get("features") if isinstance(raw, dict) else raw
@@ -548,62 +414,14 @@ def _check_provinces(raw, probs: _Problems):
         return [], None
     if not isinstance(feats, list):
         probs.add(f"provinces must be a FeatureCollection (or a list) of Polygon features, got "
-                  f"{_describe(feats)}", "provinces")
+                  f"{validate.describe(feats)}", "provinces")
         return [], None
     out, norm = [], []
     for i, feat in enumerate(feats):
-        base = f"provinces.features[{i}]"
-        if not isinstance(feat, dict) or feat.get("type") != "Feature":
-            probs.add("each province must be a GeoJSON Feature with a Polygon geometry", base)
+        got = _check_province(i, feat, probs)
+        if got is None:
             continue
-        geom, props = feat.get("geometry"), feat.get("properties")
-        ring = None
-        if not isinstance(geom, dict) or geom.get("type") != "Polygon":
-            got = geom.get("type") if isinstance(geom, dict) else geom
-            probs.add(f"province geometry must be a Polygon, got {_describe(got)}", f"{base}.geometry")
-        else:
-            rings = geom.get("coordinates")
-            if not isinstance(rings, list) or not rings:
-                probs.add("Polygon coordinates must be a list of rings", f"{base}.geometry.coordinates")
-            else:
-                if len(rings) > 1:
-                    probs.add("province polygons with holes are not supported; split the province "
-                              "or list the hole as a province of its own (later provinces win)",
-                              f"{base}.geometry.coordinates[1]")
-                ring = _positions(rings[0], f"{base}.geometry.coordinates[0]", probs, 4)
-                if ring is not None:
-                    if np.allclose(ring[0], ring[-1]):
-                        ring = ring[:-1]
-                    if len(ring) < 3:
-                        probs.add("a province ring needs at least 3 distinct vertices",
-                                  f"{base}.geometry.coordinates[0]")
-                        ring = None
-        if not isinstance(props, dict):
-            probs.add("province properties must be an object with 'lithosphere'", f"{base}.properties")
-            continue
-        pbase = f"{base}.properties"
-        lith = props.get("lithosphere")
-        if lith is None:
-            probs.add(f"missing 'lithosphere'; expected one of {', '.join(LITHOSPHERES)}",
-                      f"{pbase}.lithosphere")
-        else:
-            lith = _choice(lith, LITHOSPHERES, f"{pbase}.lithosphere", probs, "lithosphere")
-        age = props.get("age_myr")
-        if age is not None:
-            age = _number(age, f"{pbase}.age_myr", probs, low=0.0, high=4600.0, what="age_myr")
-        stiff = props.get("stiffness", 1.0)
-        stiff = _number(stiff, f"{pbase}.stiffness", probs, low=0.0, high=1e3, what="stiffness")
-        name = props.get("name", f"province {i}")
-        if not isinstance(name, str):
-            probs.add(f"name must be a string, got {_describe(name)}", f"{pbase}.name")
-            name = None
-        if ring is None or lith is None or stiff is None or name is None or (
-                "age_myr" in props and props["age_myr"] is not None and age is None):
-            continue
-        p = dict(props)
-        p.update({"lithosphere": lith, "stiffness": stiff, "name": name})
-        if age is not None:
-            p["age_myr"] = age
+        ring, p = got
         out.append((i, ring, p))
         norm.append({"type": "Feature", "properties": p,
                      "geometry": {"type": "Polygon",
@@ -611,10 +429,66 @@ def _check_provinces(raw, probs: _Problems):
     return out, {"type": "FeatureCollection", "features": norm}
 
 
+def _province_ring(geom, base: str, probs: _Problems) -> np.ndarray | None:
+    """The outer ring (k, 2) of a province Polygon, not closed."""
+    if not isinstance(geom, dict) or geom.get("type") != "Polygon":
+        got = geom.get("type") if isinstance(geom, dict) else geom
+        probs.add(f"province geometry must be a Polygon, got {validate.describe(got)}",
+                  f"{base}.geometry")
+        return None
+    rings = geom.get("coordinates")
+    if not isinstance(rings, list) or not rings:
+        probs.add("Polygon coordinates must be a list of rings", f"{base}.geometry.coordinates")
+        return None
+    if len(rings) > 1:
+        probs.add("province polygons with holes are not supported; split the province or list "
+                  "the hole as a province of its own (later provinces win)",
+                  f"{base}.geometry.coordinates[1]")
+    ring = validate.positions(rings[0], f"{base}.geometry.coordinates[0]", probs, min_count=4)
+    if ring is None:
+        return None
+    if np.allclose(ring[0], ring[-1]):
+        ring = ring[:-1]
+    if len(ring) < 3:
+        probs.add("a province ring needs at least 3 distinct vertices",
+                  f"{base}.geometry.coordinates[0]")
+        return None
+    return ring
+
+
+def _check_province(i: int, feat, probs: _Problems):
+    """One province feature -> (ring (k, 2), normalised properties) or None."""
+    base = f"provinces.features[{i}]"
+    if not isinstance(feat, dict) or feat.get("type") != "Feature":
+        probs.add("each province must be a GeoJSON Feature with a Polygon geometry", base)
+        return None
+    ring = _province_ring(feat.get("geometry"), base, probs)
+    props = feat.get("properties")
+    if not isinstance(props, dict):
+        probs.add("province properties must be an object with 'lithosphere'", f"{base}.properties")
+        return None
+    pbase = f"{base}.properties"
+    n0 = len(probs)
+    lith = props.get("lithosphere")
+    lith = validate.choice(validate.MISSING if lith is None else lith, LITHOSPHERES,
+                           f"{pbase}.lithosphere", probs, required=True)
+    age = validate.number(props.get("age_myr"), f"{pbase}.age_myr", probs, low=0.0,
+                          low_inclusive=False, high=4600.0, nullable=True)
+    stiff = validate.number(props.get("stiffness", 1.0), f"{pbase}.stiffness", probs, low=0.0,
+                            low_inclusive=False, high=1e3)
+    name = validate.text(props.get("name", f"province {i}"), f"{pbase}.name", probs, empty=True,
+                         strip=False, max_length=_MAX_NAME_CHARS)
+    if ring is None or len(probs) > n0:
+        return None
+    p = dict(props)
+    p.update({"lithosphere": lith, "stiffness": stiff, "name": name})
+    if age is not None:
+        p["age_myr"] = age
+    return ring, p
+
+
 def _province_overlaps(provs, plate_poly, centre, probs: _Problems):
     """Keep provinces that overlap the plate; report the others."""
-    import shapely
-
     kept = []
     for i, ring, p in provs:
         where = f"provinces.features[{i}].geometry"
@@ -639,45 +513,65 @@ def _province_overlaps(provs, plate_poly, centre, probs: _Problems):
 
 def _refinement(value, where: str, probs: _Problems):
     if not isinstance(value, list):
-        probs.add(f"refinement must be a list of objects, got {_describe(value)}", where)
+        probs.add(f"refinement must be a list of objects, got {validate.describe(value)}", where)
         return None
-    out = []
     n0 = len(probs)
-    for k, item in enumerate(value):
-        w = f"{where}[{k}]"
-        if not isinstance(item, dict):
-            probs.add(f"each refinement must be an object with 'point' or 'polygon' and 'edge_km', "
-                      f"got {_describe(item)}", w)
-            continue
-        unknown = set(item) - {"point", "polygon", "edge_km", "radius_km"}
-        for u in sorted(unknown, key=str):
-            probs.add(f"unknown field {u!r}; expected point or polygon, edge_km, radius_km", f"{w}.{u}")
-        r = {}
-        if ("point" in item) == ("polygon" in item):
-            probs.add("give exactly one of 'point' ([lon, lat]) or 'polygon' ([[lon, lat], ...])", w)
-        elif "point" in item:
-            pos = _position(item["point"], f"{w}.point", probs)
-            if pos is not None:
-                r["point"] = list(pos)
-        else:
-            ring = _positions(item["polygon"], f"{w}.polygon", probs, 3)
-            if ring is not None:
-                r["polygon"] = ring.tolist()
-        if "edge_km" not in item:
-            probs.add("missing 'edge_km' (the finer edge length, km)", f"{w}.edge_km")
-        else:
-            e = _number(item["edge_km"], f"{w}.edge_km", probs, low=0.1, high=5000.0,
-                        low_inclusive=True, what="edge_km")
-            if e is not None:
-                r["edge_km"] = e
-        rad = _number(item.get("radius_km", 0.0), f"{w}.radius_km", probs, low=0.0, high=20000.0,
-                      low_inclusive=True, what="radius_km")
-        r["radius_km"] = rad if rad is not None else 0.0
-        out.append(r)
+    out = [_refinement_item(item, f"{where}[{k}]", probs) for k, item in enumerate(value)]
     return out if len(probs) == n0 else None
 
 
+def _refinement_item(item, w: str, probs: _Problems) -> dict | None:
+    if not isinstance(item, dict):
+        probs.add(f"each refinement must be an object with 'point' or 'polygon' and 'edge_km', "
+                  f"got {validate.describe(item)}", w)
+        return None
+    unknown = set(item) - {"point", "polygon", "edge_km", "radius_km"}
+    for u in sorted(unknown, key=str):
+        probs.add(f"unknown field {u!r}; expected point or polygon, edge_km, radius_km", f"{w}.{u}")
+    r = {}
+    if ("point" in item) == ("polygon" in item):
+        probs.add("give exactly one of 'point' ([lon, lat]) or 'polygon' ([[lon, lat], ...])", w)
+    elif "point" in item:
+        pos = validate.position(item["point"], f"{w}.point", probs)
+        if pos is not None:
+            r["point"] = list(pos)
+    else:
+        ring = validate.positions(item["polygon"], f"{w}.polygon", probs, min_count=3)
+        if ring is not None:
+            r["polygon"] = ring.tolist()
+    e = validate.number(item.get("edge_km", validate.MISSING), f"{w}.edge_km", probs, low=0.1,
+                        high=5000.0, required="the finer edge length, km")
+    if e is not None:
+        r["edge_km"] = e
+    rad = validate.number(item.get("radius_km", 0.0), f"{w}.radius_km", probs, low=0.0,
+                          high=20000.0)
+    r["radius_km"] = rad if rad is not None else 0.0
+    return r
+
+
 # --------------------------------------------------------------------------------------------
+# the ring, the size limit, the whole document
+
+
+def _check_geometry(seg_coords: list, mesh: dict, provs: list, probs: _Problems):
+    """Close the ring; check the mesh size it implies and that provinces lie on the plate.
+
+    Returns (Ring or None, kept provinces as (ring (k, 2), props)).
+    """
+    ring = close_ring(seg_coords, probs)
+    if ring is None:
+        return None, []
+    est_nodes = _estimate_nodes(ring.area_km2, mesh)
+    if est_nodes > MAX_MESH_NODES:
+        probs.add(f"mesh.edge_km {mesh['edge_km']:g} km is too fine for a plate of "
+                  f"{ring.area_km2:.3g} km^2: about {est_nodes:,.0f} nodes, the limit is "
+                  f"{MAX_MESH_NODES:,}", "mesh.edge_km")
+    kept: list = []
+    if provs:
+        gx, gy = sphere.gnomonic_forward(ring.xyz, ring.centre_xyz)
+        plate_poly = shapely.Polygon(np.column_stack([gx, gy]))
+        kept = _province_overlaps(provs, plate_poly, ring.centre_xyz, probs)
+    return ring, kept
 
 
 def parse_plate(document) -> PlateModel:
@@ -716,170 +610,47 @@ def parse_plate(document) -> PlateModel:
     """
     probs = _Problems()
     if not isinstance(document, dict):
-        probs.add(f"a plate model document must be a JSON object, got {_describe(document)}")
-        raise ModelValidationError("invalid plate model document", probs.items)
-    defaults = plate_defaults()
-    for key in document:
-        if key not in _TOP_FIELDS:
-            probs.add(f"unknown field {key!r}; expected {', '.join(_TOP_FIELDS)}", str(key))
-
-    name = document.get("name")
-    if not isinstance(name, str) or not name.strip():
-        probs.add(f"name must be a non-empty string, got {_describe(name)}", "name")
-        name = None
-    description = document.get("description")
-    if description is not None and not isinstance(description, str):
-        probs.add(f"description must be a string, got {_describe(description)}", "description")
-
-    def num(low=None, high=None, low_inclusive=False, high_inclusive=True):
-        def check(value, where):
-            return _number(value, where, probs, low, high, low_inclusive, high_inclusive,
-                           what=where.split(".")[-1])
-        return check
-
-    def choice(options):
-        return lambda value, where: _choice(value, options, where, probs, where.split(".")[-1])
-
-    def text(value, where):
-        if not isinstance(value, str) or not value:
-            probs.add(f"must be a non-empty string, got {_describe(value)}", where)
-            return None
-        return value
-
-    ridge_push = _table(document, "ridge_push", defaults["ridge_push"], {
-        "mode": choice(("edge", "distributed")),
-        "age_source": choice(("provinces", "grid", "ridge_distance")),
-        "age_grid": text,
-        "age_variable": text,
-    }, probs)
-    if ridge_push.get("mode") == "distributed":
-        src = ridge_push.setdefault("age_source", "grid" if "age_grid" in ridge_push else "ridge_distance")
-        if src == "grid" and "age_grid" not in ridge_push:
-            probs.add("ridge_push.age_source 'grid' needs 'age_grid' (path of a netCDF age grid)",
-                      "ridge_push.age_grid")
-    ridge_mode = ("distributed_ridge_distance" if ridge_push.get("mode") == "distributed"
-                  and ridge_push.get("age_source") == "ridge_distance" else ridge_push.get("mode"))
-
-    drag = _table(document, "drag", defaults["drag"], {
-        "closure": choice(("torque_balance", "none")),
-        "viscosity_pa_s": num(0.0, 1e30),
-        "channel_km": num(0.0, 3000.0),
-    }, probs)
-    sheet = _table(document, "sheet", defaults["sheet"], {
-        "thickness_km": num(0.0, 1000.0),
-        "young_gpa": num(0.0, 1e4),
-        "poisson": num(0.0, 0.5, low_inclusive=True, high_inclusive=False),
-    }, probs)
-    mesh = _table(document, "mesh", defaults["mesh"], {
-        "edge_km": num(1.0, 2000.0, low_inclusive=True),
-        "grading": num(0.05, 2.0, low_inclusive=True),
-        "refinement": lambda v, w: _refinement(v, w, probs),
-    }, probs)
-
-    # boundary --------------------------------------------------------------------------
-    boundary = document.get("boundary")
-    seg_coords: list = []
-    features_out: list = []
-    boundary_ok = False
-    if boundary is None:
-        probs.add("missing 'boundary' (a GeoJSON FeatureCollection of LineString segments)",
-                  "boundary")
-    elif not isinstance(boundary, dict) or boundary.get("type") != "FeatureCollection":
-        probs.add("boundary must be a GeoJSON FeatureCollection of LineString features", "boundary")
-    elif not isinstance(boundary.get("features"), list):
-        probs.add(f"boundary.features must be an array, got {_describe(boundary.get('features'))}",
-                  "boundary.features")
-    elif not boundary["features"]:
-        probs.add("the boundary needs at least one LineString feature", "boundary.features")
-    else:
-        n0 = len(probs)
-        for i, feat in enumerate(boundary["features"]):
-            coords, feat_out = _check_segment(i, feat, probs, ridge_mode)
-            seg_coords.append(coords)
-            features_out.append(feat_out)
-        boundary_ok = all(c is not None for c in seg_coords) and len(probs) == n0
-
+        probs.add(f"a plate model document must be a JSON object, got "
+                  f"{validate.describe(document)}")
+        raise ModelValidationError("invalid plate model document", probs)
+    name, description = _check_header(document, probs)
+    ridge_push, drag, sheet, mesh, ridge_mode = _check_tables(document, probs)
+    seg_coords, features, boundary_ok = _check_boundary(document.get("boundary"), probs,
+                                                        ridge_mode)
     provs, provinces_out = _check_provinces(document.get("provinces"), probs)
-
-    ring = arc_segment = bounds = centre = None
-    area_km2 = 0.0
-    kept_provs: list = []
-    if boundary_ok:
-        order = _join_ring(seg_coords, probs)
-        if order is not None:
-            ring, arc_segment, bounds = _build_ring(order, seg_coords)
-            ring_xyz = sphere.lonlat_to_xyz(ring[:, 0], ring[:, 1])
-            # crossings first, about the vertex mean (area and centroid mean nothing for a
-            # ring that crosses itself)
-            mean = sphere.normalize(ring_xyz.sum(axis=0))
-            spread = (np.degrees(np.max(sphere.angle_between(ring_xyz, mean)))
-                      if np.any(mean) else 180.0)
-            if spread < 89.0:
-                n0 = len(probs)
-                _self_intersections(ring_xyz, arc_segment, mean, probs)
-                if len(probs) > n0:
-                    ring = None
-            if ring is not None:
-                area = sphere.spherical_polygon_area(ring_xyz)
-                if area < 0:
-                    order = [(s, not f) for s, f in reversed(order)]
-                    ring, arc_segment, bounds = _build_ring(order, seg_coords)
-                    ring_xyz = sphere.lonlat_to_xyz(ring[:, 0], ring[:, 1])
-                area_km2 = abs(area)
-                centre = sphere.polygon_centroid_xyz(ring_xyz)
-                extent = np.degrees(np.max(sphere.angle_between(ring_xyz, centre)))
-                if len(ring) < 3 or area_km2 < 1.0:
-                    probs.add(f"the boundary ring encloses no area ({area_km2:.3g} km^2)",
-                              "boundary")
-                    ring = None
-                elif extent > MAX_EXTENT_DEG or spread >= 89.0:
-                    extent = max(extent, spread)
-                    probs.add(f"the plate is larger than supported: its ring reaches {extent:.1f} "
-                              f"degrees of arc from the plate centre; the limit is "
-                              f"{MAX_EXTENT_DEG:g} degrees (the plate must fit in a cap of that "
-                              "radius, well inside a hemisphere); split the plate", "boundary")
-                    ring = None
-            if ring is not None:
-                est_nodes = _estimate_nodes(area_km2, mesh)
-                if est_nodes > MAX_MESH_NODES:
-                    probs.add(f"mesh.edge_km {mesh['edge_km']:g} km is too fine for a plate of "
-                              f"{area_km2:.3g} km^2: about {est_nodes:,.0f} nodes, the limit is "
-                              f"{MAX_MESH_NODES:,}", "mesh.edge_km")
-                if provs:
-                    import shapely
-
-                    gx, gy = sphere.gnomonic_forward(ring_xyz, centre)
-                    plate_poly = shapely.Polygon(np.column_stack([gx, gy]))
-                    kept_provs = _province_overlaps(provs, plate_poly, centre, probs)
-
-    if len(probs):
-        raise ModelValidationError(
-            f"invalid plate model document: {len(probs)} problem{'s' if len(probs) > 1 else ''}",
-            probs.items)
-
-    segments = []
-    for i, (feat, coords) in enumerate(zip(features_out, seg_coords)):
-        props = feat["properties"]
-        props.setdefault("group", props["kind"])
-        segments.append(Segment(index=i, kind=props["kind"], group=props["group"],
-                                properties=dict(props),
-                                start=int(bounds[i][0]), stop=int(bounds[i][1])))
-    provinces = tuple(
-        Province(polygon_lonlat=_frozen(r), lithosphere=p["lithosphere"], age_myr=p.get("age_myr"),
-                 stiffness=float(p["stiffness"]), name=p["name"]) for r, p in kept_provs)
-    norm = {"name": name.strip()}
+    ring, kept_provs = (_check_geometry(seg_coords, mesh, provs, probs) if boundary_ok
+                        else (None, []))
+    validate.raise_problems(
+        probs, f"invalid plate model document: {len(probs)} problem{'s' if len(probs) > 1 else ''}",
+        ModelValidationError)
+    norm = {"name": name}
     if description is not None:
         norm["description"] = description
-    norm["boundary"] = {"type": "FeatureCollection", "features": features_out}
+    norm["boundary"] = {"type": "FeatureCollection", "features": features}
     if provinces_out is not None:
         norm["provinces"] = provinces_out
     norm.update({"ridge_push": ridge_push, "drag": drag, "sheet": sheet, "mesh": mesh})
-    ring_xyz = sphere.lonlat_to_xyz(ring[:, 0], ring[:, 1])
+    return _assemble(norm, ring, kept_provs)
+
+
+def _assemble(norm: dict, ring: Ring, kept_provs: list) -> PlateModel:
+    """The :class:`PlateModel` of a document that passed every check."""
+    segments = []
+    for i, feat in enumerate(norm["boundary"]["features"]):
+        props = feat["properties"]
+        props.setdefault("group", props["kind"])
+        start, stop = ring.bounds[i]
+        segments.append(Segment(index=i, kind=props["kind"], group=props["group"],
+                                properties=dict(props), start=int(start), stop=int(stop)))
+    provinces = tuple(
+        Province(polygon_lonlat=_frozen(r), lithosphere=p["lithosphere"], age_myr=p.get("age_myr"),
+                 stiffness=float(p["stiffness"]), name=p["name"]) for r, p in kept_provs)
     return PlateModel(
-        name=name.strip(), document=norm, ring_lonlat=_frozen(ring), ring_xyz=_frozen(ring_xyz),
-        segments=tuple(segments), provinces=provinces, ridge_push=dict(ridge_push),
-        drag=dict(drag), sheet=dict(sheet), mesh=dict(mesh), arc_segment=_frozen(arc_segment),
-        centre_xyz=_frozen(centre), area_km2=float(area_km2))
+        name=norm["name"], document=norm, ring_lonlat=_frozen(ring.lonlat),
+        ring_xyz=_frozen(ring.xyz), segments=tuple(segments), provinces=provinces,
+        ridge_push=dict(norm["ridge_push"]), drag=dict(norm["drag"]), sheet=dict(norm["sheet"]),
+        mesh=dict(norm["mesh"]), arc_segment=_frozen(ring.arc_segment),
+        centre_xyz=_frozen(ring.centre_xyz), area_km2=float(ring.area_km2))
 
 
 def _estimate_nodes(area_km2: float, mesh: dict) -> float:
@@ -893,13 +664,3 @@ def _frozen(a) -> np.ndarray:
     a = np.ascontiguousarray(a)
     a.setflags(write=False)
     return a
-
-
-def load_plate_files(boundary_path, params_path=None) -> dict:
-    """Build a plate model document from a boundary file and a parameter file.
-
-    Thin wrapper over :func:`stressmap.io.plate_files.load_plate_files` (file reading lives in the I/O
-    module); see there.
-    """
-
-    return _load(boundary_path, params_path)

@@ -40,12 +40,12 @@ defaults.toml).
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
 
 import numpy as np
 from scipy import integrate
 
+from stressmap import validate
 from stressmap.constants import G_M_S2, M_PER_S_PER_MM_PER_YR, SECONDS_PER_MYR
 from stressmap.errors import InputError, problem
 from stressmap.physics import thermal
@@ -69,7 +69,7 @@ __all__ = [
     "segment_force_n_per_m",
 ]
 
-#: Boundary segment kinds (DESIGN.md) and the sign of their normal force (+ pushes into the plate).
+#: Boundary segment kinds (README, Conventions) and the sign of their normal force (+ pushes into the plate).
 SEGMENT_KINDS = {
     "ridge": 1.0,
     "subduction": -1.0,
@@ -356,22 +356,19 @@ def trench_suction_n_per_m(params=None, **overrides) -> np.ndarray:
 
 
 def _prop(properties: Mapping, key: str, default, *, lo=0.0, hi=None, strict_lo=False):
-    value = properties.get(key)
-    if value is None:
-        return float(default)
-    field = f"properties.{key}"
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-        raise InputError(f"{field} must be a finite number, got {value!r}", [problem(f"must be a finite number, got {value!r}", field=field)])
-    if (value <= lo if strict_lo else value < lo) or (hi is not None and value > hi):
-        rng = f"{'>' if strict_lo else '>='} {lo:g}" + (f" and <= {hi:g}" if hi is not None else "")
-        raise InputError(f"{field} must be {rng}, got {value!r}", [problem(f"must be {rng}, got {value!r}", field=field)])
-    return float(value)
+    """One numeric segment property (``default`` when absent or null), checked by
+    :func:`stressmap.validate.number`."""
+    problems: list = []
+    value = validate.number(properties.get(key), f"properties.{key}", problems, low=lo, high=hi,
+                            low_inclusive=not strict_lo, nullable=True)
+    validate.raise_problems(problems)
+    return float(default) if value is None else value
 
 
 def segment_force_n_per_m(kind: str, properties: Mapping | None = None, params=None) -> float:
     """Signed normal line force (N/m) of one boundary segment from its document properties.
 
-    Sign convention (DESIGN.md): positive pushes into the plate, negative pulls outward. For
+    Sign convention (README, Conventions): positive pushes into the plate, negative pulls outward. For
     ``transform`` the result is the shear magnitude (its direction comes from ``sense``, applied
     by the load builder); ``free`` and ``fixed`` give 0 (a fixed edge is a displacement
     constraint, not a force).

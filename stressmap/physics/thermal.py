@@ -44,6 +44,7 @@ from collections.abc import Mapping
 import numpy as np
 from scipy import special
 
+from stressmap import validate
 from stressmap.constants import SECONDS_PER_MYR
 from stressmap.errors import InputError, problem
 
@@ -129,16 +130,12 @@ def resolve_params(params: Mapping | None = None) -> dict:
             if key not in merged[section]:
                 problems.append(problem(f"unknown physics parameter {field}", field=field))
                 continue
-            default = merged[section][key]
-            if isinstance(default, str):
-                if not isinstance(value, str):
-                    problems.append(problem("must be a string", field=field))
-                    continue
+            if isinstance(merged[section][key], str):
+                checked = validate.text(value, field, problems, empty=True, strip=False)
             else:
-                if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-                    problems.append(problem(f"must be a finite number, got {value!r}", field=field))
-                    continue
-            merged[section][key] = value
+                checked = validate.number(value, field, problems)
+            if checked is not None:
+                merged[section][key] = value  # as given (an int stays an int)
     if problems:
         msg = problems[0]["message"] if len(problems) == 1 else "invalid physics parameters"
         raise InputError(msg, problems)

@@ -27,6 +27,8 @@ import numpy as np
 
 from stressmap.analyses.screening import regime_fields, stress_polygon
 from stressmap.constants import CAUTION
+from stressmap.plot.labels import freeze_layout, place_labels, text_box
+from stressmap.plot.maps import MapWindow, draw_north_arrow, draw_scale_bar, frame_axes
 
 __all__ = [
     "mohr_figure", "mohr_png", "polygon_figure", "polygon_png", "fault_map_figure",
@@ -46,13 +48,16 @@ def footer_text(result=None) -> str:
         head = (f"Site {s['lon']:.3f}, {s['lat']:.3f}, {s['depth_km']:g} km; "
                 f"{s['regime']}, SHmax {s['shmax_azimuth_deg']:.0f} deg"
                 + (f"; model {model}" if model else "") + ". ")
-    return head + CAUTION + " Follow local codes and licensed practice."
+    return head + CAUTION
 
 
 def _figure(width=7.5, height=6.2):
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
-    return Figure(figsize=(width, height), dpi=110, layout="constrained")
+    fig = Figure(figsize=(width, height), dpi=110, layout="constrained")
+    FigureCanvasAgg(fig)
+    return fig
 
 
 def _add_footer(fig, result):
@@ -85,14 +90,17 @@ def mohr_figure(result):
     pp, mu, coh = s["pp_mpa"], s["friction"], s["cohesion_mpa"]
     principal = np.sort(np.linalg.eigvalsh(result.stress_ned))[::-1] - pp   # s1' >= s2' >= s3'
     s1, s2, s3 = principal
-    fig = _figure(8.0, 5.2)
+    x_max = s1 * 1.08 + 1.0
+    y_max = max((s1 - s3) / 2 * 1.25, coh + 1.0)
+    # equal scales on both axes: size the figure to the data so the page is not half empty
+    x_span = x_max - min(0.0, s3 - 1.0)
+    fig = _figure(8.0, float(np.clip(5.6 * y_max / x_span + 2.4, 3.6, 7.0)))
     ax = fig.add_subplot()
     for (a, b), style in (((s3, s1), dict(lw=1.8, color="0.1")),
                           ((s2, s1), dict(lw=1.0, color="0.35")),
                           ((s3, s2), dict(lw=1.0, color="0.35"))):
         ax.add_patch(Circle(((a + b) / 2, 0.0), (b - a) / 2, fill=False, gid="mohr-circle",
                             **style))
-    x_max = s1 * 1.08 + 1.0
     x = np.linspace(0.0, x_max, 50)
     ax.plot(x, coh + mu * x, color="#b2182b", lw=1.4, ls="--", gid="failure-envelope",
             label=f"Coulomb envelope, friction {mu:g}, cohesion {coh:g} MPa")
@@ -105,14 +113,8 @@ def mohr_figure(result):
                         edgecolors="k", linewidths=0.5, zorder=3, gid="fault-points",
                         label="planes")
         fig.colorbar(sc, ax=ax, shrink=0.6, label="pore-pressure margin to failure (MPa)")
-        for r, xe, yt in zip(planes["rank"][:5], eff[:5], tau[:5]):
-            ax.annotate(str(r), (xe, yt), textcoords="offset points", xytext=(4, 4),
-                        fontsize=7)
-    for name, v in (("\u03c3\u2083'", s3), ("\u03c3\u2082'", s2), ("\u03c3\u2081'", s1)):
-        ax.annotate(name, (v, 0.0), textcoords="offset points", xytext=(3, 3), ha="left",
-                    va="bottom", fontsize=8)
     ax.set_xlim(min(0.0, s3 - 1.0), x_max)
-    ax.set_ylim(0.0, max((s1 - s3) / 2 * 1.25, coh + 1.0))
+    ax.set_ylim(0.0, y_max)
     ax.set_aspect("equal", adjustable="box")
     ax.set_xlabel("effective normal stress \u03c3\u2099 \u2212 Pp (MPa, compression positive)")
     ax.set_ylabel("shear stress \u03c4 (MPa)")
@@ -121,7 +123,29 @@ def mohr_figure(result):
                  fontsize=9)
     ax.legend(loc="upper left", fontsize=7, frameon=False)
     _add_footer(fig, result)
+    freeze_layout(fig)
+    _mohr_labels(ax, planes, principal)
     return fig
+
+
+#: How many planes (least margin first) get their rank written beside them on the Mohr diagram.
+MOHR_LABELLED_PLANES = 8
+
+
+def _mohr_labels(ax, planes, principal) -> None:
+    """Principal-stress names on the axis and the ranks of the first planes, none overlapping."""
+    renderer = ax.figure.canvas.get_renderer()
+    reserved = [tuple(ax.get_legend().get_window_extent(renderer).extents)]
+    names = ("\u03c3\u2081'", "\u03c3\u2082'", "\u03c3\u2083'")
+    placed = place_labels(ax, np.column_stack([principal, np.zeros(3)]), names,
+                          reserved=reserved, fontsize=8, gid="principal-label")
+    reserved += [text_box(a, renderer, pad=1.5) for a in placed]
+    if planes.get("strike_deg") is not None and planes["strike_deg"].size:
+        k = MOHR_LABELLED_PLANES
+        xy = np.column_stack([planes["effective_normal_stress_mpa"][:k],
+                              planes["shear_stress_mpa"][:k]])
+        place_labels(ax, xy, [str(r) for r in planes["rank"][:k]], reserved=reserved,
+                     fontsize=7, gid="rank-label")
 
 
 def mohr_png(result) -> bytes:
@@ -218,80 +242,162 @@ def polygon_png(result) -> bytes:
     return _png(polygon_figure(result))
 
 
-def _nice_length_km(span_km):
-    raw = span_km / 4.0
-    power = 10 ** math.floor(math.log10(raw)) if raw > 0 else 1.0
-    return max(v * power for v in (1, 2, 5) if v * power <= raw) if raw >= power else power
+def _wrap_lon(lon, centre):
+    """Longitudes continued across the antimeridian relative to ``centre`` (degrees)."""
+    return centre + (np.mod(np.asarray(lon, dtype=float) - centre + 180.0, 360.0) - 180.0)
 
 
-def fault_map_figure(result):
-    """Map of trace segments (lines) and planes (points) coloured by pore-pressure margin."""
-    from matplotlib.collections import LineCollection
-    from matplotlib.colors import Normalize  # noqa: F401  (norm built by _margin_norm)
-
-    s = result.site
-    planes = result.planes
-    geom = result.plane_geometry
-    fig = _figure(7.5, 6.6)
-    ax = fig.add_subplot()
-    coslat = max(math.cos(math.radians(s["lat"])), 1e-3)
-    pts = [np.array([[s["lon"], s["lat"]]])]
-    margins = planes.get("pore_pressure_margin_mpa", np.zeros(0))
-    norm = _margin_norm(margins)
-    kind = planes.get("kind", np.zeros(0, dtype=object))
-    is_seg = kind == "trace segment"
-    mappable = None
-    if is_seg.any():
-        segs = geom[is_seg].copy()
-        # keep segments continuous across the antimeridian relative to the site
-        segs[..., 0] = s["lon"] + (np.mod(segs[..., 0] - s["lon"] + 180.0, 360.0) - 180.0)
-        lc = LineCollection(segs, cmap=MARGIN_CMAP, norm=norm, linewidths=2.6,
-                            gid="fault-traces")
-        lc.set_array(margins[is_seg])
-        ax.add_collection(lc)
-        mappable = lc
-        pts.append(segs.reshape(-1, 2))
-    located = (~is_seg) & np.isfinite(geom[:, 0, 0]) if geom.size else np.zeros(0, bool)
-    if located.any():
-        xy = geom[located, 0]
-        xy = np.column_stack([s["lon"] + (np.mod(xy[:, 0] - s["lon"] + 180, 360) - 180),
-                              xy[:, 1]])
-        mappable = ax.scatter(xy[:, 0], xy[:, 1], c=margins[located], cmap=MARGIN_CMAP,
-                              norm=norm, marker="s", s=36, edgecolors="k", linewidths=0.5,
-                              zorder=3, gid="fault-planes")
-        pts.append(xy)
+def _fault_window(site, pts) -> MapWindow:
+    """A square window (on the page) around every point, at least about 6 km across."""
     allpts = np.concatenate(pts)
+    coslat = max(math.cos(math.radians(site["lat"])), 1e-3)
     x0, y0 = allpts.min(0)
     x1, y1 = allpts.max(0)
     half = max((x1 - x0) * coslat, y1 - y0, 0.05) * 0.6
     cx, cy = (x0 + x1) / 2, (y0 + y1) / 2
-    ax.set_xlim(cx - half / coslat, cx + half / coslat)
-    ax.set_ylim(cy - half, cy + half)
-    ax.set_aspect(1.0 / coslat)
+    return MapWindow(cx - half / coslat, cx + half / coslat, cy - half, cy + half)
+
+
+def _draw_traces(ax, result, is_seg, norm):
+    """Trace segments coloured by margin; returns (collection or None, [(lon, lat)...])."""
+    from matplotlib.collections import LineCollection
+
+    if not is_seg.any():
+        return None, []
+    segs = result.plane_geometry[is_seg].copy()
+    segs[..., 0] = _wrap_lon(segs[..., 0], result.site["lon"])
+    lc = LineCollection(segs, cmap=MARGIN_CMAP, norm=norm, linewidths=2.6, gid="fault-traces")
+    lc.set_array(result.planes["pore_pressure_margin_mpa"][is_seg])
+    ax.add_collection(lc)
+    return lc, [segs.reshape(-1, 2)]
+
+
+def _trace_labels(result, is_seg):
+    """One label per fault: its name and the rank of its least-margin segment, placed at the
+    middle of that segment. Returns (xy (k, 2), texts)."""
+    planes, geom = result.planes, result.plane_geometry
+    feature = np.asarray(planes["feature"])[is_seg]
+    ranks = np.asarray(planes["rank"])[is_seg]
+    names = np.asarray(planes["name"], dtype=object)[is_seg]
+    mids = geom[is_seg].mean(axis=1)
+    mids[:, 0] = _wrap_lon(mids[:, 0], result.site["lon"])
+    # planes are ranked, so the first segment of each feature is its least-margin one
+    _, first = np.unique(feature, return_index=True)
+    first = np.sort(first)
+    return mids[first], [f"{names[i] or 'fault'} (rank {ranks[i]})" for i in first]
+
+
+def _draw_site_planes(ax, result, unlocated, norm, half):
+    """Planes without a location as strike lines through the site, coloured by margin."""
+    from matplotlib.collections import LineCollection
+
+    s = result.site
+    coslat = max(math.cos(math.radians(s["lat"])), 1e-3)
+    strike = np.radians(np.asarray(result.planes["strike_deg"], dtype=float)[unlocated])
+    d = 0.55 * half
+    ends = np.stack([np.sin(strike) * d / coslat, np.cos(strike) * d], axis=-1)  # (k, 2)
+    centre = np.array([s["lon"], s["lat"]])
+    segs = np.stack([centre - ends, centre + ends], axis=1)
+    lc = LineCollection(segs, cmap=MARGIN_CMAP, norm=norm, linewidths=1.8, zorder=3,
+                        gid="site-planes")
+    lc.set_array(result.planes["pore_pressure_margin_mpa"][unlocated])
+    ax.add_collection(lc)
+    ranks = np.asarray(result.planes["rank"])[unlocated]
+    return lc, centre + ends, [f"{r}" for r in ranks]
+
+
+def _draw_site(ax, s, half) -> None:
+    """The site star and a centred bar along its SHmax azimuth (30 % of the view)."""
+    coslat = max(math.cos(math.radians(s["lat"])), 1e-3)
     ax.plot([s["lon"]], [s["lat"]], marker="*", ms=13, mfc="white", mec="k", ls="none",
             zorder=4, gid="site", label="site")
-    # SHmax direction through the site: a centred bar, length 30 % of the view
     a = math.radians(s["shmax_azimuth_deg"])
     d = 0.3 * half
     ax.plot([s["lon"] - d * math.sin(a) / coslat, s["lon"] + d * math.sin(a) / coslat],
             [s["lat"] - d * math.cos(a), s["lat"] + d * math.cos(a)], color="#b2182b", lw=2,
-            zorder=4, gid="shmax-direction", label=f"SHmax {s['shmax_azimuth_deg']:.0f}\u00b0")
-    # scale bar (km on the 6371 km sphere)
-    span_km = 2 * half * math.pi / 180 * 6371.0
-    bar_km = _nice_length_km(span_km)
-    bar_deg = bar_km / (math.pi / 180 * 6371.0) / coslat
-    bx, by = cx - 0.9 * half / coslat, cy - 0.9 * half
-    ax.plot([bx, bx + bar_deg], [by, by], color="k", lw=3, gid="scale-bar")
-    ax.text(bx + bar_deg / 2, by + 0.03 * half, f"{bar_km:g} km", ha="center", fontsize=7)
+            zorder=5, gid="shmax-direction", label=f"SHmax {s['shmax_azimuth_deg']:.0f}\u00b0")
+
+
+def fault_map_figure(result):
+    """Map of trace segments (lines) and planes coloured by pore-pressure margin.
+
+    Traces carry their fault's name and rank; planes with a location are squares labelled by
+    rank; planes without one (strike/dip only) are drawn as strike lines through the site,
+    labelled by rank, and the map says so. The frame (scale bar true along its parallel, north
+    arrow) is the one every map shares (:func:`stressmap.plot.maps.frame_axes`).
+    """
+    s = result.site
+    planes, geom = result.planes, result.plane_geometry
+    fig = _figure(7.5, 6.6)
+    ax = fig.add_subplot()
+    margins = planes.get("pore_pressure_margin_mpa", np.zeros(0))
+    norm = _margin_norm(margins)
+    kind = np.asarray(planes.get("kind", np.zeros(0, dtype=object)), dtype=object)
+    is_seg = kind == "trace segment"
+    located = (~is_seg) & np.isfinite(geom[:, 0, 0]) if geom.size else np.zeros(0, bool)
+    unlocated = (~is_seg) & ~located
+    pts = [np.array([[s["lon"], s["lat"]]])]
+    mappable, trace_pts = _draw_traces(ax, result, is_seg, norm)
+    pts += trace_pts
+    labels_xy, labels, site_xy, site_labels = [], [], np.zeros((0, 2)), []
+    if is_seg.any():
+        xy, texts = _trace_labels(result, is_seg)
+        labels_xy.append(xy)
+        labels += texts
+    if located.any():
+        xy = np.column_stack([_wrap_lon(geom[located, 0, 0], s["lon"]), geom[located, 0, 1]])
+        mappable = ax.scatter(xy[:, 0], xy[:, 1], c=margins[located], cmap=MARGIN_CMAP,
+                              norm=norm, marker="s", s=36, edgecolors="k", linewidths=0.5,
+                              zorder=3, gid="fault-planes")
+        pts.append(xy)
+        labels_xy.append(xy)
+        names = np.asarray(planes["name"], dtype=object)[located]
+        labels += [f"{n} (rank {r})" for n, r in zip(names, np.asarray(planes["rank"])[located])]
+    window = _fault_window(s, pts)
+    half = 0.5 * (window.y1 - window.y0)
+    if unlocated.any():
+        lc, site_xy, site_labels = _draw_site_planes(ax, result, unlocated, norm, half)
+        mappable = mappable or lc
+    frame_axes(ax, window, grid=False)
+    _draw_site(ax, s, half)
+    draw_scale_bar(ax, window, fontsize=7)
+    draw_north_arrow(ax, window)
+    _fault_map_note(ax, int(unlocated.sum()), int(planes.get("kind", np.zeros(0)).size))
     if mappable is not None:
         fig.colorbar(mappable, ax=ax, shrink=0.8, label="pore-pressure margin to failure (MPa)")
-    ax.set_xlabel("longitude (\u00b0)")
-    ax.set_ylabel("latitude (\u00b0)")
     ax.set_title(f"Fault planes at {s['depth_km']:g} km coloured by margin (dark = closer to "
-                 "failure)", fontsize=9)
-    ax.legend(loc="upper right", fontsize=7)
+                 "failure; rank 1 = least margin)", fontsize=9)
+    ax.legend(loc="upper left", fontsize=7)
     _add_footer(fig, result)
+    freeze_layout(fig)
+    renderer = fig.canvas.get_renderer()
+    taken = [tuple(ax.get_legend().get_window_extent(renderer).extents)]
+    if labels:  # every fault and located plane is named
+        placed = place_labels(ax, np.concatenate(labels_xy), labels, fontsize=7,
+                              gid="fault-label", reserved=taken)
+        taken += [text_box(a, renderer, pad=1.5) for a in placed]
+    k = MAP_LABELLED_SITE_PLANES  # the first ranks of the planes at the site, where there is room
+    place_labels(ax, site_xy[:k], site_labels[:k], fontsize=7, gid="fault-label",
+                 reserved=taken, optional=True)
     return fig
+
+
+#: How many planes without a location (least margin first) may get a rank label on the map.
+MAP_LABELLED_SITE_PLANES = 12
+
+
+def _fault_map_note(ax, n_unlocated: int, n_planes: int) -> None:
+    """Say what the map cannot show: planes without a location, or no planes at all."""
+    if n_planes == 0:
+        text = "no planes or faults were given:\nonly the site is shown"
+    elif n_unlocated:
+        text = (f"{n_unlocated} plane(s) without a location:\ndrawn through the site along "
+                "their strike;\nthe first ranks labelled where there is room")
+    else:
+        return
+    ax.text(0.98, 0.02, text, transform=ax.transAxes, ha="right", va="bottom", fontsize=7,
+            color="0.2", gid="map-note", bbox=dict(facecolor="white", edgecolor="0.7",
+                                                   alpha=0.9, boxstyle="round,pad=0.3"))
 
 
 def fault_map_png(result) -> bytes:

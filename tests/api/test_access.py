@@ -23,7 +23,9 @@ from stressmap.errors import NotFoundError
 
 TOKEN = "s3cret-token-for-tests-only"
 AUTH = {"Authorization": f"Bearer {TOKEN}"}
-LEAKS = re.compile(r"Traceback|site-packages|/work/|/tmp/|/root/|/home/|/usr/|\.py\b|File \"|"
+REPO = str(Path(__file__).resolve().parents[2])  # this checkout, wherever it lives
+LEAKS = re.compile(r"Traceback|site-packages|" + re.escape(REPO) +
+                   r"|/tmp/|/root/|/home/|/usr/|\.py\b|File \"|"
                    r"line \d+, in ")
 
 

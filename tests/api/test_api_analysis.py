@@ -172,6 +172,11 @@ def test_ensemble_job_points_matches_the_library(svc, coarse_demo_model, tmp_pat
         assert ds.sizes["member"] == 400
     png = client.get(links["png"])
     assert png.status_code == 200 and png.data[:8] == b"\x89PNG\r\n\x1a\n"
+    regime = client.get(links["png"] + "&picture=regime")
+    assert regime.status_code == 200 and regime.data[:8] == b"\x89PNG\r\n\x1a\n"
+    assert regime.data != png.data and "regime" in regime.headers["Content-Disposition"]
+    bad = client.get(links["png"] + "&picture=fan")
+    assert bad.status_code == 422 and bad.json["errors"][0]["field"] == "picture"
 
 
 def test_ensemble_region_polygon(svc):

@@ -78,7 +78,7 @@ def test_build_over_http_describe_list_and_delete(client):
     assert summary["mesh"]["nodes"] > 50
     assert {g["name"] for g in summary["groups"]} == {
         "transform", "ridge", "collision", "overriding", "subduction"}
-    # torque balance after the drag closure, relative to the driving torque (DESIGN.md)
+    # torque balance after the drag closure, relative to the driving torque (README, Conventions: torque balance)
     for g in summary["groups"]:
         assert g["torque_after_n_m"] < 1e-6 * g["torque_before_n_m"]
     assert summary["total"]["plate_speed_max_mm_yr"] > 0

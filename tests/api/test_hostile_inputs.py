@@ -35,7 +35,9 @@ from service_support import store_ready_model
 CORPUS = Path(__file__).resolve().parents[1] / "hostile"
 TIME_LIMIT_S = 5.0
 PROBLEM = "application/problem+json"
-LEAKS = re.compile(r"Traceback|site-packages|/work/|/tmp/|/root/|\.py\b|File \"")
+REPO = str(Path(__file__).resolve().parents[2])  # this checkout, wherever it lives
+LEAKS = re.compile(r"Traceback|site-packages|" + re.escape(REPO) +
+                   r"|/tmp/|/root/|\.py\b|File \"")
 READER_LEAKS = re.compile(r"Traceback|site-packages|\.py\b|File \"")
 
 

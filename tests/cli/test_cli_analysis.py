@@ -137,3 +137,27 @@ def test_ensemble_without_vary_says_which_defaults_it_varied(coarse_demo_dir, tm
         inside = ds["inside"].values.astype(bool)
         assert np.nanmax(ds["shmax_std_deg"].values[inside]) > 0
         assert json.loads(ds.attrs["distributions"])
+
+
+def test_ensemble_regime_probability_map(coarse_demo_dir, tmp_path, capsys):
+    """--regime-png draws P(normal), P(strike-slip), P(reverse) from the same members as the
+    netCDF; decoded with Pillow, each panel's cells carry the colour of their probability."""
+    import matplotlib
+    import numpy as np
+    from PIL import Image
+
+    nc, png = tmp_path / "ens.nc", tmp_path / "regimes.png"
+    args = ["ensemble", str(coarse_demo_dir), "--bbox=-30,-30,-5,-5", "--spacing-km", "500",
+            "--members", "60", "--vary", "collision=log-uniform:0.2:5", "--seed", "2"]
+    assert main(args + ["-o", str(nc), "--regime-png", str(png)]) == 0
+    assert "regime probability map" in capsys.readouterr().out
+    img = np.asarray(Image.open(png).convert("RGB"), dtype=float) / 255.0
+    assert img.shape[1] > 2 * img.shape[0]  # three map panels side by side
+    img = img[:, : int(0.85 * img.shape[1])]  # the panels only, not the colourbar
+    cmap = matplotlib.colormaps["magma_r"]
+    with xr.open_dataset(nc) as ds:
+        for var in ("prob_normal", "prob_strike_slip", "prob_reverse"):
+            values = ds[var].values[np.isfinite(ds[var].values)]
+            for v in np.unique(np.round(values, 2))[:3]:
+                share = (np.abs(img - np.asarray(cmap(v)[:3])).max(axis=-1) < 0.03).mean()
+                assert share > 1e-4, (var, v)

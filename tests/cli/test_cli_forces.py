@@ -105,7 +105,7 @@ def test_bad_params_file_names_the_key(tmp_path, capsys):
 @pytest.mark.parametrize(
     ("option", "value", "message"),
     [("--age-myr", "-5", "must be >= 0"), ("--pull-fraction", "1.5", "must be <= 1"),
-     ("--channel-km", "0", "must be > 0"), ("--viscosity-pa-s", "abc", "not a number"),
+     ("--channel-km", "0", "must be > 0"), ("--viscosity-pa-s", "abc", "must be a number"),
      ("--length-km", "nan", "must be finite")],
 )
 def test_bad_option_values_are_rejected_with_the_option_named(capsys, option, value, message):

@@ -98,7 +98,8 @@ def test_csv_file_carries_the_caution(capsys, tmp_path):
     assert list(frame["strike_deg"]) == [40.0]
     assert "pore_pressure_margin_mpa" in frame.columns
     printed = capsys.readouterr().out
-    assert printed.startswith("CAUTION:") and printed.rstrip().endswith("licensed practice.")
+    assert printed.startswith("CAUTION:") and printed.rstrip().endswith(CAUTION)
+    assert printed.count("licensed") == 2  # once at the top, once at the end: no repeat after it
 
 
 def test_sampling_reports_percentiles_and_probability(capsys):
@@ -180,3 +181,18 @@ def test_density_profile_with_the_optional_gradient_left_empty(capsys, tmp_path)
     bad.write_text("top_km,density_kg_m3,gradient_kg_m3_per_km\n0,2200,x\n")
     assert main([*BASE, *ORIENT, "--density-profile", str(bad)]) == 2
     assert "gradient_kg_m3_per_km" in capsys.readouterr().err
+
+
+def test_hints_name_flags_not_request_fields(capsys, coarse_demo_dir):
+    """The CLI's notes speak of --ensemble-members, not the HTTP field ensemble_members."""
+    doc = run_json(capsys, "--model", str(coarse_demo_dir), "--plane", "040/60",
+                   "--samples", "20")
+    hint = [n for n in doc["notes"] if "ensemble" in n]
+    assert hint and "--ensemble-members" in hint[0] and "--ensemble-distributions" in hint[0]
+    assert not any("ensemble_members" in n or "ensemble_distributions" in n for n in doc["notes"])
+
+
+def test_errors_name_the_flag_that_set_the_value(capsys):
+    assert main([*BASE, *ORIENT, "--plane", "040/60", "--friction-range", "0.8,0.5"]) == 2
+    err = capsys.readouterr().err
+    assert "--friction-range" in err and "friction_range" not in err

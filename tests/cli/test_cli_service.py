@@ -7,6 +7,7 @@ The demo's outputs are read back with geopandas (GeoJSON), xarray (netCDF) and P
 from __future__ import annotations
 
 import json
+import os
 
 import numpy as np
 
@@ -52,6 +53,7 @@ def test_demo_refuses_a_bad_spacing(tmp_path, capsys):
 
 def test_server_settings_come_from_config_and_file(tmp_path, monkeypatch):
     monkeypatch.delenv("STRESSMAP_SERVER_CONFIG", raising=False)
+    monkeypatch.delenv("STRESSMAP_PORT", raising=False)
     repo = load_server_config()
     assert repo["host"] == "127.0.0.1" and repo["port"] == 8000  # the README's address
     assert repo["max_request_body_size"] > 16 * 1024 * 1024  # the service answers 413 first
@@ -66,3 +68,39 @@ def test_server_settings_come_from_config_and_file(tmp_path, monkeypatch):
 def test_missing_server_config_is_a_clear_error(tmp_path, capsys):
     assert main(["serve", "--server-config", str(tmp_path / "nope.toml")]) == 2
     assert "server configuration not found" in capsys.readouterr().err
+
+
+def test_port_from_the_environment(tmp_path, monkeypatch):
+    monkeypatch.delenv("STRESSMAP_SERVER_CONFIG", raising=False)
+    monkeypatch.setenv("STRESSMAP_PORT", "8765")
+    assert load_server_config()["port"] == 8765
+    custom = tmp_path / "server.toml"
+    custom.write_text('[server]\nport = 9123\n')
+    assert load_server_config(str(custom))["port"] == 8765  # the environment wins over files
+
+
+def test_port_from_the_environment_must_be_a_port(monkeypatch, capsys):
+    monkeypatch.setenv("STRESSMAP_PORT", "80x")
+    assert main(["serve"]) == 2
+    err = capsys.readouterr().err
+    assert "STRESSMAP_PORT" in err and "'80x'" in err
+
+
+def test_make_serve_passes_the_port(tmp_path):
+    """`make serve PORT=...` hands the port to `stressmap serve` (GNU make's dry run)."""
+    import shutil
+    import subprocess
+    from pathlib import Path
+
+    if shutil.which("make") is None:  # CI installs make with the repository's own Makefile
+        subprocess.run(["apt-get", "update"], check=True, capture_output=True)
+        subprocess.run(["apt-get", "install", "-y", "make"], check=True, capture_output=True)
+    repo = Path(__file__).resolve().parents[2]
+    dry = subprocess.run(["make", "-n", "-C", str(repo), "serve", "PORT=8123"],
+                         capture_output=True, text=True, check=True).stdout
+    (line,) = [ln for ln in dry.splitlines() if "stressmap serve" in ln]
+    assert line.endswith("--port 8123")
+    plain = subprocess.run(["make", "-n", "-C", str(repo), "serve"], capture_output=True,
+                           text=True, check=True, env={k: v for k, v in os.environ.items()
+                                                       if k != "PORT"}).stdout
+    assert "--port" not in plain

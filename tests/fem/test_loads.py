@@ -23,7 +23,7 @@ def square_ring(side=2.0):
 
 
 def test_inward_normal_points_into_the_plate():
-    # Interior on the left of the traversal (DESIGN.md), so r x t points inside.
+    # Interior on the left of the traversal (README, Conventions), so r x t points inside.
     xyz, edges = square_ring()
     _, t, n = loads.edge_geometry(xyz, edges, planar=True)
     mid = 0.5 * (xyz[edges[:, 0]] + xyz[edges[:, 1]])

@@ -55,7 +55,7 @@ def test_components_round_trip(hmax, delta, az):
     [(10.0, 2.0, "reverse"), (10.0, -2.0, "strike-slip"), (-1.0, -5.0, "normal")],
 )
 def test_anderson_regime(hmax, hmin, name):
-    # Anderson (1951) classification with vertical tectonic stress 0 (DESIGN.md) -- common practice.
+    # Anderson (1951) classification with vertical tectonic stress 0 (README, Conventions) -- common practice.
     assert tensor.regime(hmax, hmin) == name
 
 

@@ -212,6 +212,7 @@ def test_grid_across_the_antimeridian_keeps_longitudes_increasing(demo):
 @pytest.mark.parametrize("bbox, spacing, field", [
     ((0, 10, 5, 5), 50, "bbox"),
     ((0, 0, 5, 95), 50, "bbox"),
+    ((5, 0, 5, 5), 50, "bbox"),       # W == E: a box of no width, refused (not the globe)
     ((0, 0, 5, 5), 0, "spacing_km"),
     ((0, 0, 5, 5), 1e-4, "spacing_km"),
 ])

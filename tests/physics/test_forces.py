@@ -115,7 +115,7 @@ def test_ridge_push_rate_is_the_derivative_of_ridge_push():
 
 
 def test_body_force_points_toward_older_lithosphere():
-    # Definition (DESIGN.md): body force = dF/dt * grad(age), toward older lithosphere.
+    # Definition (README, Force calculator): body force = dF/dt * grad(age), toward older lithosphere.
     grad = np.array([[3e-6, -4e-6], [0.0, 0.0]])  # Myr/m, east and north
     f = forces.ridge_push_body_force_n_per_m2(np.array([30.0, 30.0]), grad, TEXTBOOK)
     assert f.shape == (2, 2)
@@ -267,7 +267,7 @@ def test_body_force_is_linear_in_age_gradient(age, gx, gy, k):
     [("ridge", 1), ("subduction", -1), ("overriding", -1), ("collision", 1), ("transform", 1), ("free", 0), ("fixed", 0)],
 )
 def test_segment_force_signs_follow_design(kind, sign):
-    # DESIGN.md: + pushes into the plate (ridge push, collision), - pulls outward (slab pull,
+    # README, Conventions: + pushes into the plate (ridge push, collision), - pulls outward (slab pull,
     # trench suction); transform gives a shear magnitude; free and fixed carry no force.
     f = forces.segment_force_n_per_m(kind, {})
     assert np.sign(f) == sign
@@ -297,12 +297,12 @@ def test_segment_force_uses_properties_then_defaults():
     ("kind", "props", "field", "message"),
     [
         ("ridge", {"age_myr": -3.0}, "properties.age_myr", "must be >= 0"),
-        ("ridge", {"age_myr": "old"}, "properties.age_myr", "finite number"),
+        ("ridge", {"age_myr": "old"}, "properties.age_myr", "must be a number"),
         ("ridge", {"half_rate_mm_yr": 0.0}, "properties.half_rate_mm_yr", "must be > 0"),
         ("ridge", {"cooling_model": "slab"}, "properties.cooling_model", "unknown cooling model"),
         ("subduction", {"pull_fraction": 2.0}, "properties.pull_fraction", "<= 1"),
         ("collision", {"force_n_per_m": -1e12}, "properties.force_n_per_m", "must be >= 0"),
-        ("transform", {"mean_stress_mpa": float("nan")}, "properties.mean_stress_mpa", "finite number"),
+        ("transform", {"mean_stress_mpa": float("nan")}, "properties.mean_stress_mpa", "must be finite"),
         ("trench", {}, "kind", "unknown segment kind"),
     ],
 )

@@ -110,8 +110,10 @@ def test_png_has_the_caution_footer(result, fn):
 
     fig = getattr(ps, fn.replace("_png", "_figure"))(result)
     footer = " ".join(t.get_text() for t in fig.texts if t.get_gid() == "caution-footer")
-    assert CAUTION.replace(" ", "") in footer.replace("\n", "").replace(" ", "")
-    assert "licensed practice" in footer
+    flat = footer.replace("\n", "").replace(" ", "")
+    # the caution ends the footer and is said once: no second sentence repeating it
+    assert flat.endswith(CAUTION.replace(" ", ""))
+    assert footer.count("licensed") == 1
     png = getattr(ps, fn)(result)
     assert png[:8] == b"\x89PNG\r\n\x1a\n"
     img = mpimg.imread(io.BytesIO(png), format="png")
@@ -165,3 +167,83 @@ def test_stress_polygon_names_its_fields_in_words():
     for regime, tri in parts.items():
         x, y = tri.mean(axis=0)
         assert sc.REGIMES[int(sc.regime_from_magnitudes(y, x, s["sv_mpa"]))] == regime
+
+
+# --- pictures a report can use: labels that do not overlap, names and ranks on the map ---------
+
+def _extents(artists):
+    """Display boxes of the labels' characters (matplotlib's Text extent, leaders excluded)."""
+    from matplotlib.text import Text
+
+    renderer = artists[0].figure.canvas.get_renderer()
+    for a in artists:
+        a.update_positions(renderer)
+    return [tuple(Text.get_window_extent(a, renderer).extents) for a in artists]
+
+
+@pytest.fixture(scope="module")
+def crowded():
+    """Ten nearly identical planes: their Mohr points coincide, so naive labels would pile up."""
+    planes = [{"strike_deg": 40.0 + 0.2 * i, "dip_deg": 60.0} for i in range(10)]
+    req = parse_request({"site": [-15.0, -20.0], "depth_km": 3.0, "regime": "normal",
+                         "shmax_azimuth_deg": 40.0, "planes": planes})
+    return screen(req)
+
+
+def test_mohr_labels_do_not_overlap(crowded):
+    from stressmap.plot.labels import label_boxes_overlap
+
+    fig = ps.mohr_figure(crowded)
+    ax = fig.axes[0]
+    ranks = _by_gid(ax, "rank-label")
+    names = _by_gid(ax, "principal-label")
+    assert len(ranks) == min(ps.MOHR_LABELLED_PLANES, 10) and len(names) == 3
+    assert sorted(int(t.get_text()) for t in ranks) == list(range(1, len(ranks) + 1))
+    fig.canvas.draw()  # positions as rendered
+    boxes = _extents([a for a in ranks + names])
+    assert not label_boxes_overlap(boxes)
+    # each rank label points at its own plane's (sigma_n', tau)
+    eff = crowded.planes["effective_normal_stress_mpa"]
+    for t in ranks:
+        r = int(t.get_text())
+        assert_allclose(t.xy, (eff[r - 1], crowded.planes["shear_stress_mpa"][r - 1]))
+
+
+def test_fault_map_names_each_trace_with_its_rank(result):
+    fig = ps.fault_map_figure(result)
+    ax = fig.axes[0]
+    labels = {t.get_text() for t in _by_gid(ax, "fault-label")}
+    seg = result.planes["kind"] == "trace segment"
+    best_a = int(result.planes["rank"][seg & (result.planes["name"] == "A")].min())
+    assert f"A (rank {best_a})" in labels
+    (b_rank,) = result.planes["rank"][result.planes["name"] == "B"]
+    assert f"B (rank {b_rank})" in labels
+    fig.canvas.draw()
+    from stressmap.plot.labels import label_boxes_overlap
+    assert not label_boxes_overlap(_extents(_by_gid(ax, "fault-label")))
+
+
+def test_fault_map_frame_has_a_north_arrow(result):
+    fig = ps.fault_map_figure(result)
+    (arrow,) = _by_gid(fig.axes[0], "north-arrow")
+    assert arrow.xy[0] == arrow.xyann[0] and arrow.xy[1] > arrow.xyann[1]
+
+
+def test_map_from_planes_only_is_not_empty(crowded):
+    fig = ps.fault_map_figure(crowded)
+    ax = fig.axes[0]
+    (lines,) = _by_gid(ax, "site-planes")
+    segs = lines.get_segments()
+    assert len(segs) == 10
+    site = np.array([crowded.site["lon"], crowded.site["lat"]])
+    # each strike line is centred on the site and runs along the plane's strike
+    coslat = np.cos(np.radians(site[1]))
+    for seg, strike in zip(segs, crowded.planes["strike_deg"]):
+        assert_allclose(seg.mean(axis=0), site, atol=1e-9)
+        d = seg[1] - seg[0]
+        assert_allclose(np.mod(np.degrees(np.arctan2(d[0] * coslat, d[1])), 180.0),
+                        np.mod(strike, 180.0), atol=1e-6)
+    assert_allclose(lines.get_array(), crowded.planes["pore_pressure_margin_mpa"])
+    (note,) = _by_gid(ax, "map-note")
+    assert "10 plane(s) without a location" in note.get_text()
+    assert len(_by_gid(ax, "fault-label")) >= 5  # the first ranks, where there is room
