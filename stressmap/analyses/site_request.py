@@ -188,20 +188,11 @@ def _site_fields(doc: dict, problems: list) -> dict:
     lon = lat = math.nan
     if site is None:
         problems.append(problem("required: [lon, lat] in degrees", field="site"))
-    else:
-        try:
-            if isinstance(site, str):
-                lon, lat = parse_site_text(site, "site")
-            elif isinstance(site, dict):
-                lon, lat = float(site["lon"]), float(site["lat"])
-            else:
-                lon, lat = (float(v) for v in site)
-            if not (math.isfinite(lon) and math.isfinite(lat)) or abs(lat) > 90:
-                raise ValueError
-        except (InputError, KeyError, TypeError, ValueError):
-            problems.append(problem(f"must be [lon, lat] with latitude in [-90, 90], got "
-                                    f"{site!r}", field="site"))
-    lon = ((lon + 180.0) % 360.0) - 180.0 if math.isfinite(lon) else lon
+    else:  # any finite longitude, wrapped to [-180, 180)
+        xy = validate.position(site, "site", problems, lon_range=None, altitude=False,
+                               text=True, mapping=True)
+        if xy is not None:
+            lon, lat = ((xy[0] + 180.0) % 360.0) - 180.0, xy[1]
     depth = _number(doc, "depth_km", problems, lo=0.0, lo_open=True, hi=40.0)
     if "depth_km" not in doc:
         problems.append(problem("required: depth below the surface in km", field="depth_km"))
