@@ -51,6 +51,8 @@ def boundary_forces(model, weights=None) -> dict:
             value, applied = 0.0, ("displacement held at zero" if seg.kind == "fixed" else "none")
         elif seg.kind == "ridge" and distributed and seg.properties.get("force_n_per_m") is None:
             value, applied = 0.0, "body force through the oceanic lithosphere"
+        elif seg.kind == "ridge" and plate.ridge_push.get("mode") == "gpe":
+            value, applied = 0.0, "GPE of the oceanic columns (the GPE load group)"
         else:
             value = float(forces.segment_force_n_per_m(seg.kind, seg.properties))
         normal = shear = 0.0

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import math
 
+from stressmap_api.grids import check_references, load_document_grids
 from stressmap_api.store import Store, document_digest
 
 from stressmap.errors import InputError, problem
@@ -63,22 +64,18 @@ def _boundary_vertex_count(document) -> int:
     return total
 
 
-def check_document(document, max_mesh_nodes: int) -> dict:
+def check_document(document, max_mesh_nodes: int, data_dir=None) -> dict:
     """Validate a plate model document before accepting its build.
 
     Returns ``{"name": ..., "digest": ..., "estimated_nodes": ...}``. Raises
     :class:`~stressmap.errors.ModelValidationError` (every problem of the document) or
-    :class:`~stressmap.errors.InputError` when the mesh would exceed ``max_mesh_nodes``.
+    :class:`~stressmap.errors.InputError` when the mesh would exceed ``max_mesh_nodes`` or the
+    document names a grid that is not an uploaded grid of ``data_dir`` (none without it).
     """
 
-    ridge_push = document.get("ridge_push") if isinstance(document, dict) else None
-    if isinstance(ridge_push, dict) and ("age_grid" in ridge_push
-                                         or ridge_push.get("age_source") == "grid"):
-        # A path in an upload would make the service open any file (or URL) it can reach.
-        raise InputError("ridge_push.age_grid names a file on the server; uploads cannot",
-                         [problem("the service reads no server files named in a document; give "
-                                  "ages with age_source 'provinces' or 'ridge_distance'",
-                                  field="ridge_push.age_grid")])
+    # Grids are uploaded resources named by id; a path or URL would make the service open any
+    # file it can reach, so it is refused (stressmap_api.grids.check_references).
+    check_references(document, data_dir)
     vertices = _boundary_vertex_count(document)
     if vertices > MAX_BOUNDARY_VERTICES:
         # Checked before parsing: validation and meshing grow with the vertex count (a mesh has
@@ -112,7 +109,9 @@ def build_and_store(data_dir: str, model_id: str, document: dict, max_mesh_nodes
     def build_progress(fraction, message=""):
         progress(0.95 * float(fraction), message)
 
-    model = build_model(document, progress=build_progress)
+    grids = load_document_grids(document, data_dir)  # uploaded grids named by id, as arrays
+    extra = {"grids": grids} if grids else {}  # plain documents call build_model as before
+    model = build_model(document, progress=build_progress, **extra)
     nodes = mesh_nodes(model)
     if max_mesh_nodes and nodes > max_mesh_nodes:
         raise InputError("the model's mesh is too large",

@@ -34,8 +34,9 @@ def _model_links(model_id: str) -> dict:
 @require_token
 def create_model():
     document = queries.json_body(request)
-    checked = check_document(document, int(current_app.config.get("MAX_MESH_NODES") or 0))
     store = get_store()
+    checked = check_document(document, int(current_app.config.get("MAX_MESH_NODES") or 0),
+                             data_dir=store.data_dir)
     job_id = new_id()
     model_id = store.add_model(checked["name"], job_id, checked["digest"])
     try:

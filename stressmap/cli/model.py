@@ -9,6 +9,7 @@ from stressmap import CAUTION, validate
 from stressmap.cli._progress import progress_bar
 from stressmap.errors import InputError, problem
 from stressmap.formats import export
+from stressmap.io.grids import read_document_grids
 from stressmap.io.modeldir import read_model, write_model
 from stressmap.io.plate_files import load_plate_files
 from stressmap.io.points import read_points
@@ -73,9 +74,12 @@ def load_document(path: str, params: str | None = None) -> dict:
 def _cmd_build(args) -> int:
 
     document = load_document(args.model, args.params)
+    # grid paths are relative to the working directory, else to the file that names them
+    base = Path(args.params if args.params else args.model).parent
+    grids = read_document_grids(document, base_dir=base)
     bar, update = progress_bar("build")
     try:
-        model = build_model(document, progress=update)
+        model = build_model(document, progress=update, grids=grids)
     finally:
         bar.close()
     out = write_model(model, args.output)

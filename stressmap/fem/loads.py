@@ -31,6 +31,7 @@ __all__ = [
     "edge_line_loads",
     "body_force_loads",
     "facet_gradient",
+    "gpe_loads",
     "to_dofs",
     "net_torque",
     "drag_matrix",
@@ -170,6 +171,86 @@ def body_force_loads(xyz, triangles, force_per_area) -> np.ndarray:
     f = np.asarray(force_per_area, dtype=float).reshape(-1, 3) * (area / 3.0)[:, None]
     out = np.zeros((xyz.shape[0], 3))
     np.add.at(out, tri.reshape(-1), np.repeat(f, 3, axis=0))
+    return out
+
+
+def _region_boundary(triangles, active):
+    """Edges (k, 2) of the active facets that no other active facet shares, as ordered in their
+    facet (counter-clockwise seen from outside: the region on their left), and that facet (k,)."""
+    idx = np.flatnonzero(active)
+    tri = triangles[idx]
+    edges = np.concatenate([tri[:, [0, 1]], tri[:, [1, 2]], tri[:, [2, 0]]])
+    owner = np.tile(idx, 3)
+    lo, hi = edges.min(axis=1), edges.max(axis=1)
+    key = lo * (int(triangles.max(initial=0)) + 1) + hi  # one int64 per undirected edge
+    _, inverse, counts = np.unique(key, return_inverse=True, return_counts=True)
+    once = counts[inverse] == 1
+    return edges[once], owner[once]
+
+
+def gpe_loads(xyz, triangles, gpe_n_per_m, active=None) -> np.ndarray:
+    """Equivalent nodal forces (n, 3), N, of a GPE field: the body force ``-grad U``.
+
+    ``U`` (n,) is the nodal GPE (N/m, P1 over each flat facet); the thin-sheet equation
+    ``div N = grad U`` (tension-positive N; :mod:`stressmap.physics.gpe`) is loaded in weak form
+    by, at each node i,
+
+        F_i = integral U grad(phi_i) dA  -  integral_boundary U phi_i n_out ds
+
+    over the active facets: the volume term (GPE times the shape-function gradients) and the
+    edge term where the boundary of the active region (the plate boundary, or the edge of the
+    provinces that carry GPE) cuts the field. Together they equal ``-integral phi_i grad U dA``,
+    so adding a constant to U changes nothing. Both terms use each facet's own plane, so on a
+    flat region the identity is exact; on the faceted sphere the facets of an interior edge are
+    not coplanar and a constant U would leave forces along the mean facet normal (the radial
+    direction carried by the foundation) with tangential parts of order (edge / radius)^2: U is
+    therefore taken relative to its mean over the active nodes first.
+
+    Parameters
+    ----------
+    xyz : (n, 3) node positions, m.
+    triangles : (m, 3) node indices, counter-clockwise seen from outside (or from +z, planar).
+    gpe_n_per_m : (n,) nodal GPE, N/m.
+    active : (m,) bool, optional, the facets that carry GPE (default all).
+
+    Examples
+    --------
+    A constant U loads nothing; a linear U gives the body force ``-grad U`` times the area:
+
+    >>> xyz = np.array([[0.0, 0, 0], [1, 0, 0], [1, 1, 0], [0, 1, 0]])
+    >>> tri = np.array([[0, 1, 2], [0, 2, 3]])
+    >>> float(np.abs(gpe_loads(xyz, tri, np.full(4, 5.0))).max())
+    0.0
+    >>> gpe_loads(xyz, tri, xyz[:, 0] * 2.0).sum(axis=0).round(12).tolist()
+    [-2.0, 0.0, 0.0]
+    """
+    xyz = np.asarray(xyz, dtype=float)
+    tri = np.asarray(triangles, dtype=np.int64).reshape(-1, 3)
+    active = np.ones(tri.shape[0], dtype=bool) if active is None else np.asarray(active, bool)
+    t = tri[active]
+    u = np.asarray(gpe_n_per_m, dtype=float)
+    if t.size:  # only differences load the sheet; this also keeps the curvature residual least
+        u = u - u[np.unique(t)].mean()
+    p = xyz[t]
+    nrm = np.cross(p[:, 1] - p[:, 0], p[:, 2] - p[:, 0])
+    nn = np.einsum("mc,mc->m", nrm, nrm)[:, None]
+    # grad(phi_i) = n x (p_{i+2} - p_{i+1}) / |n|^2 ; integral of U over the facet = A * mean(U)
+    grads = [np.cross(nrm, p[:, (i + 2) % 3] - p[:, (i + 1) % 3]) / nn for i in range(3)]
+    u_int = (0.5 * np.sqrt(nn[:, 0]) * u[t].mean(axis=1))[:, None]
+    out = np.zeros((xyz.shape[0], 3))
+    for i in range(3):  # the three vertices of every facet at once
+        np.add.at(out, t[:, i], u_int * grads[i])
+    edges, owner = _region_boundary(tri, active)
+    if edges.size:
+        # inward normal in the plane of the edge's own facet: n_f x t (region on the left)
+        f = xyz[tri[owner]]
+        fn = np.cross(f[:, 1] - f[:, 0], f[:, 2] - f[:, 0])
+        t = xyz[edges[:, 1]] - xyz[edges[:, 0]]
+        inward = np.cross(fn, t)
+        inward /= np.linalg.norm(inward, axis=1, keepdims=True)
+        ua, ub = u[edges[:, 0]][:, None], u[edges[:, 1]][:, None]
+        # - U n_out = + U n_in, integrated exactly for U linear along the edge
+        out += edge_traction_loads(xyz, edges, ua * inward, ub * inward, n_nodes=xyz.shape[0])
     return out
 
 

@@ -9,7 +9,7 @@
   Empty attributes (nulls of a GIS table) are left out, so each feature carries only the
   parameters that apply to it.
 * **Parameter file**: TOML (``.toml``) or JSON (``.json``) with the other document fields:
-  ``name``, ``description``, ``ridge_push``, ``drag``, ``sheet``, ``mesh`` (and ``provinces``
+  ``name``, ``description``, ``ridge_push``, ``gpe``, ``drag``, ``sheet``, ``mesh`` (and ``provinces``
   if the boundary file has none).
 
 The result is a plate model document (dict) for :func:`stressmap.model.plate.parse_plate`, which
@@ -182,8 +182,8 @@ def load_plate_files(boundary_path, params_path=None) -> dict:
     boundary_path : path
         GeoJSON or GeoPackage with LineString segments (and optionally Polygon provinces).
     params_path : path, optional
-        TOML or JSON with ``name``, ``description``, ``ridge_push``, ``drag``, ``sheet``,
-        ``mesh`` and optionally ``provinces``. Without it the name is the boundary file's stem
+        TOML or JSON with ``name``, ``description``, ``ridge_push``, ``gpe``, ``drag``,
+        ``sheet``, ``mesh`` and optionally ``provinces``. Without it the name is the boundary file's stem
         and everything else takes its defaults.
 
     Returns

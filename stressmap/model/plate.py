@@ -69,7 +69,8 @@ MAX_MESH_NODES = 3_000_000
 #: Longest plate, group and province name (characters).
 _MAX_NAME_CHARS = 200
 
-_TOP_FIELDS = ("name", "description", "boundary", "provinces", "ridge_push", "drag", "sheet", "mesh")
+_TOP_FIELDS = ("name", "description", "boundary", "provinces", "ridge_push", "gpe", "drag", "sheet",
+               "mesh")
 
 #: Kind-specific parameters: (name, low, high, low_inclusive) for numbers; the low/high bounds
 #: are physical plausibility limits (common practice), not model limits.
@@ -155,6 +156,9 @@ class PlateModel:
     provinces : tuple of Province
     ridge_push, drag, sheet, mesh : dict
         Document tables with defaults filled.
+    gpe : dict or None
+        The ``gpe`` table with defaults filled when the document loads GPE (a ``gpe`` table or
+        ``ridge_push.mode`` 'gpe'), else None.
     arc_segment : ndarray (n,) int64
         Segment (position in ``segments``) of the arc from ring vertex i to i + 1.
     centre_xyz : ndarray (3,)
@@ -176,6 +180,7 @@ class PlateModel:
     arc_segment: np.ndarray = field(repr=False)
     centre_xyz: np.ndarray = field(repr=False)
     area_km2: float = 0.0
+    gpe: dict | None = None
 
     @property
     def groups(self) -> list[str]:
@@ -212,6 +217,41 @@ def _table(doc: dict, key: str, defaults: dict, spec: dict, probs: _Problems) ->
     return out
 
 
+def _check_gpe(document: dict, ridge_push: dict, probs: _Problems) -> dict | None:
+    """The ``gpe`` table (defaults from defaults.toml ``[gpe]``), or None when GPE is off."""
+    if "gpe" not in document and ridge_push.get("mode") != "gpe":
+        return None
+    defaults = {k: v for k, v in load_defaults()["gpe"].items() if k != "gravity_m_s2"}
+
+    def num(low, high, low_inclusive=False):
+        return lambda value, where: validate.number(value, where, probs, low=low, high=high,
+                                                    low_inclusive=low_inclusive)
+
+    def text(value, where):
+        return validate.text(value, where, probs, max_length=_MAX_NAME_CHARS)
+
+    density = num(0.0, 5000.0)
+    gpe = _table(document, "gpe", defaults, {
+        "group": text,
+        "isostasy": lambda v, w: validate.choice(v, ("airy", "crust"), w, probs),
+        "elevation_grid": text, "elevation_variable": text, "elevation_units": text,
+        "crust_grid": text, "crust_variable": text, "crust_units": text,
+        "smooth_km": num(0.0, 2000.0, low_inclusive=True),
+        "crust_density_kg_m3": density, "mantle_density_kg_m3": density,
+        "water_density_kg_m3": num(0.0, 5000.0, low_inclusive=True),
+        "reference_crust_km": num(0.0, 100.0),
+        "compensation_depth_km": num(0.0, 1000.0),
+        "ocean_model": lambda v, w: validate.choice(v, ("half_space", "plate"), w, probs),
+    }, probs)
+    if gpe.get("isostasy") == "crust" and "crust_grid" not in gpe:
+        probs.add("gpe.isostasy 'crust' needs 'crust_grid' (crustal thickness, km)", "gpe.crust_grid")
+    rho = [gpe[k] for k in ("water_density_kg_m3", "crust_density_kg_m3", "mantle_density_kg_m3")]
+    if all(isinstance(r, (int, float)) for r in rho) and not rho[0] < rho[1] < rho[2]:
+        probs.add("densities must satisfy water < crust < mantle, got "
+                  f"{rho[0]:g} / {rho[1]:g} / {rho[2]:g} kg/m3", "gpe.crust_density_kg_m3")
+    return gpe
+
+
 def _check_header(document: dict, probs: _Problems) -> tuple[str | None, Any]:
     """Unknown top-level fields, ``name`` and ``description``."""
     validate.unknown_fields(document, _TOP_FIELDS, probs)
@@ -240,18 +280,20 @@ def _check_tables(document: dict, probs: _Problems) -> tuple[dict, dict, dict, d
         return validate.text(value, where, probs, strip=False)
 
     ridge_push = _table(document, "ridge_push", defaults["ridge_push"], {
-        "mode": choice(("edge", "distributed")),
+        "mode": choice(("edge", "distributed", "gpe")),
         "age_source": choice(("provinces", "grid", "ridge_distance")),
         "age_grid": text,
         "age_variable": text,
     }, probs)
-    if ridge_push.get("mode") == "distributed":
+    if ridge_push.get("mode") in ("distributed", "gpe"):
         src = ridge_push.setdefault("age_source", "grid" if "age_grid" in ridge_push else "ridge_distance")
         if src == "grid" and "age_grid" not in ridge_push:
-            probs.add("ridge_push.age_source 'grid' needs 'age_grid' (path of a netCDF age grid)",
+            probs.add("ridge_push.age_source 'grid' needs 'age_grid' (a netCDF or GeoTIFF age grid: "
+                      "a file for the CLI, an uploaded grid id for the service)",
                       "ridge_push.age_grid")
-    ridge_mode = ("distributed_ridge_distance" if ridge_push.get("mode") == "distributed"
-                  and ridge_push.get("age_source") == "ridge_distance" else ridge_push.get("mode"))
+    ridge_mode = ridge_push.get("mode")
+    if ridge_mode in ("distributed", "gpe") and ridge_push.get("age_source") == "ridge_distance":
+        ridge_mode = f"{ridge_mode}_ridge_distance"
     drag = _table(document, "drag", defaults["drag"], {
         "closure": choice(("torque_balance", "none")),
         "viscosity_pa_s": num(0.0, 1e30),
@@ -383,9 +425,16 @@ def _required_parameters(kind, given: set, has_force: bool, pbase: str, probs: _
                          ridge_mode: str | None) -> None:
     """The parameters each kind needs to compute its force (unless the force is given)."""
     if kind == "ridge":
-        if ridge_mode == "distributed_ridge_distance" and "half_rate_mm_yr" not in given:
+        if str(ridge_mode).startswith("gpe") and has_force:
+            probs.add("a ridge's force_n_per_m would count ridge push twice when ridge_push.mode "
+                      "is 'gpe' (the GPE of the oceanic columns carries it); remove it or use mode "
+                      "'edge'", f"{pbase}.force_n_per_m")
+        if str(ridge_mode).endswith("_ridge_distance") and "half_rate_mm_yr" not in given:
+            mode = str(ridge_mode).split("_", 1)[0]
             probs.add("missing parameter: ridges need 'half_rate_mm_yr' when ridge_push.mode is "
-                      "'distributed' with ages from distance to the ridge", f"{pbase}.half_rate_mm_yr")
+                      f"'{mode}' with ages from distance to the ridge", f"{pbase}.half_rate_mm_yr")
+        elif ridge_mode == "gpe":
+            pass  # ages come from provinces or a grid
         elif not has_force and not given & {"age_myr", "half_rate_mm_yr"}:
             probs.add("missing parameter: a ridge needs 'age_myr' (age of the plate's lithosphere "
                       "driving ridge push) or 'half_rate_mm_yr', or an explicit 'force_n_per_m'",
@@ -615,6 +664,7 @@ def parse_plate(document) -> PlateModel:
         raise ModelValidationError("invalid plate model document", probs)
     name, description = _check_header(document, probs)
     ridge_push, drag, sheet, mesh, ridge_mode = _check_tables(document, probs)
+    gpe = _check_gpe(document, ridge_push, probs)
     seg_coords, features, boundary_ok = _check_boundary(document.get("boundary"), probs,
                                                         ridge_mode)
     provs, provinces_out = _check_provinces(document.get("provinces"), probs)
@@ -629,7 +679,10 @@ def parse_plate(document) -> PlateModel:
     norm["boundary"] = {"type": "FeatureCollection", "features": features}
     if provinces_out is not None:
         norm["provinces"] = provinces_out
-    norm.update({"ridge_push": ridge_push, "drag": drag, "sheet": sheet, "mesh": mesh})
+    norm["ridge_push"] = ridge_push
+    if gpe is not None:
+        norm["gpe"] = gpe
+    norm.update({"drag": drag, "sheet": sheet, "mesh": mesh})
     return _assemble(norm, ring, kept_provs)
 
 
@@ -650,7 +703,8 @@ def _assemble(norm: dict, ring: Ring, kept_provs: list) -> PlateModel:
         ring_xyz=_frozen(ring.xyz), segments=tuple(segments), provinces=provinces,
         ridge_push=dict(norm["ridge_push"]), drag=dict(norm["drag"]), sheet=dict(norm["sheet"]),
         mesh=dict(norm["mesh"]), arc_segment=_frozen(ring.arc_segment),
-        centre_xyz=_frozen(ring.centre_xyz), area_km2=float(ring.area_km2))
+        centre_xyz=_frozen(ring.centre_xyz), area_km2=float(ring.area_km2),
+        gpe=dict(norm["gpe"]) if "gpe" in norm else None)
 
 
 def _estimate_nodes(area_km2: float, mesh: dict) -> float:

@@ -14,6 +14,7 @@ from numpy.testing import assert_allclose
 from stressmap import model
 from stressmap.physics import forces
 from stressmap.errors import InputError, ModelValidationError
+from stressmap.io.grids import read_document_grids
 
 
 def demo_document() -> dict:
@@ -319,7 +320,8 @@ def test_distributed_ridge_push_from_an_age_grid_or_province_ages(tmp_path, sour
         xr.Dataset({"age": (("lat", "lon"), age)}, coords={"lat": lat, "lon": lon}).to_netcdf(path)
         rp.update({"age_grid": str(path), "age_variable": "age"})
     doc["ridge_push"] = rp
-    built = model.build_model(doc)
+    # grids are read at the edge and reach the core as arrays
+    built = model.build_model(doc, grids=read_document_grids(doc))
     k = built.groups.index("ridge")
     inside, u = model.unit_stress_at(built, [-5.0], [-20.0])
     assert inside[0] and np.all(np.isfinite(u))
