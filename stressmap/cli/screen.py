@@ -24,7 +24,7 @@ from stressmap.errors import InputError, problem
 from stressmap.formats.screening import result_csv, result_geojson, result_json
 from stressmap.io.faults import read_fault_file
 from stressmap.io.indicators import read_indicators
-from stressmap.io.modeldir import read_model
+from stressmap.io.networkdir import read_any_model
 from stressmap.io.tables import read_csv_table
 from stressmap.plot import screening as plot_screening
 from stressmap.plot.margins import margin_curves_png
@@ -228,7 +228,7 @@ def _run(args) -> int:
         req = parse_request(doc)
         model = model_info = None
         if args.model:
-            model = read_model(args.model)
+            model = read_any_model(args.model)
             summary = getattr(model, "summary", {}) or {}
             model_info = {"directory": str(args.model), "name": summary.get("name"),
                           "build_time": summary.get("build_time")}
