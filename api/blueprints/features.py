@@ -34,11 +34,7 @@ from stressmap_api.render import output_meta
 from stressmap_api.store import check_id, get_store
 
 from stressmap.analyses.compare import COMPARISON_COLUMNS, compare
-from stressmap.analyses.indicators import (
-    CONVERT_COLUMNS,
-    indicators_from_csv_text,
-    indicators_from_geojson,
-)
+from stressmap.analyses.indicators import CONVERT_COLUMNS
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, NotFoundError, problem
 from stressmap.formats.features import (
@@ -50,7 +46,11 @@ from stressmap.formats.features import (
     select,
     with_ids,
 )
-from stressmap.formats.indicators import indicators_geojson
+from stressmap.formats.indicators import (
+    indicators_from_csv_text,
+    indicators_from_geojson,
+    indicators_geojson,
+)
 from stressmap.io.files import write_atomic
 from stressmap.model import predict_grid
 

@@ -59,9 +59,12 @@ def _as_bool(variable) -> np.ndarray:
 
 
 def _column_values(col: np.ndarray) -> list:
-    """One column as JSON values: floats rounded (SIGNIFICANT_DIGITS), NaN -> None."""
+    """One column as JSON values: floats rounded (SIGNIFICANT_DIGITS), NaN -> None; "" (how a
+    text variable such as regime says "no value" in a Dataset) -> None."""
     if col.dtype.kind == "f":
         return [plain(v) for v in round_array(col).tolist()]
+    if col.dtype.kind in "OUS":
+        return [None if v == "" else plain(v) for v in col.tolist()]
     return [plain(v) for v in col.tolist()]
 
 

@@ -1,7 +1,6 @@
-"""Fault inputs from documents and text: GIS line traces or strike/dip points, parsed into plane sets.
+"""Fault collections: GeoJSON FeatureCollections and CSV records parsed into plane sets (no paths).
 
-No paths here (:mod:`stressmap.io.faults` opens the files). Accepted inputs (one parser for the CLI
-and the HTTP service):
+Accepted inputs (one parser for the CLI and the HTTP service; files are opened by :mod:`stressmap.io.faults`):
 
 - GeoJSON ``FeatureCollection`` (a dict, or any file geopandas/pyogrio can read: GeoJSON,
   GeoPackage, shapefile) whose features are
@@ -20,15 +19,13 @@ Errors name the feature or row (1-based) and the field.
 
 from __future__ import annotations
 
-import json
 import math
 
 from stressmap import validate
 from stressmap.errors import InputError, problem
-from stressmap.formats.tables import csv_table_from_text
 
-__all__ = ["COMPASS_POINTS", "parse_dip_direction", "faults_from_geojson", "faults_from_csv_text",
-           "collection_from_frame", "FaultInput"]
+__all__ = ["COMPASS_POINTS", "KNOWN_PROPERTIES", "FaultInput", "restore_property_names", "faults_from_geojson", "faults_from_records",
+           "parse_dip_direction"]
 
 #: 16-point compass names and their azimuths in degrees.
 COMPASS_POINTS = {name: i * 22.5 for i, name in enumerate(
@@ -65,6 +62,30 @@ class FaultInput(dict):
     features; ``traces`` -> dict(lines (list of (k, 2) arrays), dip_deg, dip_direction_deg, name,
     feature); ``feature`` is the 0-based feature number in the collection.
     """
+
+
+#: Property names a fault reader knows, and the 10-character stems a shapefile (dBASE) cuts them
+#: to: a field written as ``dip_direction_deg`` comes back as ``dip_direct``.
+KNOWN_PROPERTIES = ("name", "id", "strike_deg", "dip_deg", "dip_direction_deg", "dip_direction")
+_DBF_NAME_LENGTH = 10
+_TRUNCATED = {k[:_DBF_NAME_LENGTH]: k for k in reversed(KNOWN_PROPERTIES)
+              if len(k) > _DBF_NAME_LENGTH}
+
+
+def restore_property_names(props: dict) -> dict:
+    """Properties with names matched case-insensitively and shapefile-truncated names restored.
+
+    Examples
+    --------
+    >>> restore_property_names({"DIP_DEG": 60, "dip_direct": "NE", "Name": "A"})
+    {'dip_deg': 60, 'dip_direction_deg': 'NE', 'name': 'A'}
+    """
+    out = {}
+    for key, value in props.items():
+        low = str(key).strip().lower()
+        full = _TRUNCATED.get(low, low) if low not in KNOWN_PROPERTIES else low
+        out.setdefault(full, value)
+    return out
 
 
 def _cell(props: dict, key: str, *aliases: str):
@@ -182,6 +203,8 @@ def faults_from_geojson(collection: dict, field: str = "faults") -> FaultInput:
             problems.append(problem("feature is not an object", field=field, row=i))
             continue
         props = feat.get("properties") or {}
+        if isinstance(props, dict):
+            props = restore_property_names(props)
         geom = feat.get("geometry") or {}
         if not isinstance(props, dict):
             problems.append(problem("properties must be an object", field="properties", row=i))
@@ -202,20 +225,11 @@ def faults_from_geojson(collection: dict, field: str = "faults") -> FaultInput:
     return FaultInput(planes=planes, traces=traces)
 
 
-def faults_from_csv_text(text: str, name: str = "faults") -> FaultInput:
-    r"""Strike/dip planes from CSV text with ``strike_deg``, ``dip_deg`` and optionally ``name``,
-    ``lon``, ``lat`` columns (``#`` lines skipped).
-
-    Examples
-    --------
-    >>> out = faults_from_csv_text("name,strike_deg,dip_deg\nF1,30,60\n")
-    >>> out["planes"]["name"], out["planes"]["strike_deg"]
-    (['F1'], [30.0])
-    """
-    frame = csv_table_from_text(text, ("strike_deg", "dip_deg"), what="fault table",
-                                name=name, field="faults")
+def faults_from_records(records, field: str = "faults") -> FaultInput:
+    """Strike/dip planes from table rows (dicts with ``strike_deg``, ``dip_deg`` and optionally
+    ``name``, ``lon``, ``lat``; NaN cells count as empty), row numbers from 1."""
     features = []
-    for i, rec in enumerate(frame.to_dict("records")):  # parsing at the edge: one dict per row
+    for i, rec in enumerate(records):
         lon, lat = _cell(rec, "lon"), _cell(rec, "lat")
         geom = None  # a plane without a place; half a place is an error the parser reports
         if lon is not validate.MISSING or lat is not validate.MISSING:
@@ -224,7 +238,8 @@ def faults_from_csv_text(text: str, name: str = "faults") -> FaultInput:
                  for k, v in rec.items()}
         props.setdefault("name", f"plane {i + 1}")
         features.append({"type": "Feature", "properties": props, "geometry": geom})
-    return faults_from_geojson({"type": "FeatureCollection", "features": features}, field=name)
+    return faults_from_geojson({"type": "FeatureCollection", "features": features},
+                               field=field)
 
 
 def _plain(value):
@@ -232,11 +247,3 @@ def _plain(value):
     if value is validate.MISSING:
         return None
     return value.item() if hasattr(value, "item") else value
-
-
-def collection_from_frame(frame) -> dict:
-    """A GeoDataFrame (GeoPackage, shapefile, ...) as a lon/lat GeoJSON FeatureCollection
-    (reprojected from its CRS; null attributes as null)."""
-    if frame.crs is not None and not frame.crs.equals("EPSG:4326"):
-        frame = frame.to_crs("EPSG:4326")
-    return json.loads(frame.to_json(na="null"))

@@ -1,11 +1,11 @@
-"""Stress-indicator tables from and to text: CSV text, GeoJSON documents and GeoDataFrames in,
-CSV and GeoJSON out (no paths here: :mod:`stressmap.io.indicators` opens and writes the files).
+"""Stress-indicator tables as text and GeoJSON: raw tables in, CSV / GeoJSON out (no paths).
 
-The reader returns the cells as they are (strings for CSV, JSON values for GeoJSON properties)
-together with ``lon``/``lat`` (from point geometries for vector files) and any problems with
-geometries; :func:`stressmap.analyses.indicators.prepare_indicators` validates and converts them. Rows
-are numbered as data rows from 1 (a CSV header and ``#`` comment lines are not counted; in a
-vector file, row N is the N-th feature).
+:func:`table_from_csv_text` and :func:`table_from_geojson` return the cells as they are (strings
+for CSV, JSON values for GeoJSON properties) together with ``lon``/``lat`` and any problems with
+geometries; :func:`stressmap.analyses.indicators.prepare_indicators` validates and converts them
+(:func:`indicators_from_csv_text` and :func:`indicators_from_geojson` do both). Rows are numbered
+as data rows from 1 (a CSV header and ``#`` comment lines are not counted; in a FeatureCollection,
+row N is the N-th feature). Files are read and written by :mod:`stressmap.io.indicators`.
 """
 
 from __future__ import annotations
@@ -14,21 +14,26 @@ import io
 
 import numpy as np
 
+from stressmap.analyses.indicators import prepare_indicators
 from stressmap.errors import IndicatorFileError, problem
 from stressmap.formats.geojson import feature_collection, round_coord, round_number
 from stressmap.formats.table import frame_csv, frame_csvt
 
 __all__ = [
+    "normalise_columns",
     "table_from_csv_text",
-    "table_from_frame",
     "table_from_geojson",
+    "indicators_from_csv_text",
+    "indicators_from_geojson",
     "indicators_csv",
     "indicators_csvt",
     "indicators_geojson",
+    "table_from_frame",
 ]
 
 
-def _normalise_columns(frame):
+def normalise_columns(frame):
+    """Column names stripped and lower-case (indicator columns are case-insensitive)."""
     frame.columns = [str(c).strip().lower() for c in frame.columns]
     return frame
 
@@ -52,7 +57,7 @@ def table_from_csv_text(text: str, name: str = "CSV"):
     except (ValueError, pd.errors.ParserError) as exc:
         raise IndicatorFileError(f"cannot read {name} as CSV: {exc}",
                                  [problem(f"not a readable CSV table: {exc}")]) from exc
-    return _normalise_columns(frame), []
+    return normalise_columns(frame), []
 
 
 def table_from_geojson(doc, field: str = "indicators"):
@@ -101,7 +106,29 @@ def table_from_geojson(doc, field: str = "indicators"):
     table = table.drop(columns=[c for c in ("lon", "lat") if c in table.columns])
     table.insert(0, "lat", lat)
     table.insert(0, "lon", lon)
-    return _normalise_columns(table), problems
+    return normalise_columns(table), problems
+
+
+def indicators_from_geojson(doc, skip_bad: bool = False, field: str = "indicators"):
+    """Indicators from a GeoJSON FeatureCollection dict (as sent to the HTTP service)."""
+
+    table, probs = table_from_geojson(doc, field=field)
+    return prepare_indicators(table, skip_bad=skip_bad, problems=probs, name=field)
+
+
+def indicators_from_csv_text(text: str, skip_bad: bool = False, name: str = "indicators"):
+    """Indicators from CSV text.
+
+    Examples
+    --------
+    >>> gdf = indicators_from_csv_text(
+    ...     "id,lon,lat,type,azimuth_deg\\nB1,5,45,breakout,10\\nT1,5,45,tensile_fracture,10\\n")
+    >>> gdf["shmax_azimuth_deg"].tolist(), gdf["sigma_deg"].tolist(), gdf["weight"].tolist()
+    ([100.0, 10.0], [20.0, 20.0], [1.0, 1.0])
+    """
+
+    table, probs = table_from_csv_text(text, name)
+    return prepare_indicators(table, skip_bad=skip_bad, problems=probs, name=name)
 
 
 def _jsonable(v):
@@ -175,7 +202,7 @@ def table_from_frame(gdf, name: str = "indicators"):
     is_point = kinds == "Point"
     problems = [problem(f"geometry must be a Point, got {kinds[i]}", field="geometry", row=int(i) + 1)
                 for i in np.flatnonzero(~is_point)]
-    table = _normalise_columns(gdf.drop(columns=gdf.geometry.name).reset_index(drop=True))
+    table = normalise_columns(gdf.drop(columns=gdf.geometry.name).reset_index(drop=True))
     table = table.drop(columns=[c for c in ("lon", "lat") if c in table.columns])
     safe = geoms.where(is_point)
     table.insert(0, "lat", np.where(is_point, safe.y.to_numpy(float), np.nan))

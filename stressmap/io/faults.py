@@ -1,6 +1,20 @@
-"""Fault files: opening GeoJSON, GeoPackage, shapefile or CSV fault files.
+"""Fault files: GIS line traces or strike/dip points, read into plane sets.
 
-Parsing lives in :mod:`stressmap.formats.faults` (its public names are re-exported here).
+Accepted inputs (one reader for the CLI and the HTTP service):
+
+- GeoJSON ``FeatureCollection`` (a dict, or any file geopandas/pyogrio can read: GeoJSON,
+  GeoPackage, shapefile) whose features are
+
+  * ``LineString`` / ``MultiLineString`` traces with properties ``dip_deg`` and
+    ``dip_direction_deg`` (degrees clockwise from north, or a compass point such as ``"NE"``;
+    optional -- without it the plane dips to the right of the digitised direction), or
+  * ``Point`` features (or features without geometry) with ``strike_deg`` and ``dip_deg``
+    (right-hand rule);
+
+  and optionally ``name``;
+- CSV tables with columns ``strike_deg``, ``dip_deg`` and optionally ``name``, ``lon``, ``lat``.
+
+Errors name the feature or row (1-based) and the field.
 """
 
 from __future__ import annotations
@@ -12,14 +26,19 @@ from stressmap.errors import InputError, problem
 from stressmap.formats.faults import (
     COMPASS_POINTS,
     FaultInput,
-    collection_from_frame,
-    faults_from_csv_text,
     faults_from_geojson,
+    faults_from_records,
     parse_dip_direction,
 )
+from stressmap.io.tables import read_csv_table
 
-__all__ = ["COMPASS_POINTS", "parse_dip_direction", "read_fault_file", "faults_from_geojson",
-           "FaultInput"]
+__all__ = ["COMPASS_POINTS", "FaultInput", "faults_from_geojson", "parse_dip_direction",
+           "read_fault_file"]
+
+
+def _read_csv(path: Path) -> FaultInput:
+    frame = read_csv_table(path, ("strike_deg", "dip_deg"), what="fault table", field="faults")
+    return faults_from_records(frame.to_dict("records"), field=str(path))
 
 
 def read_fault_file(path) -> tuple[FaultInput, dict]:
@@ -28,21 +47,16 @@ def read_fault_file(path) -> tuple[FaultInput, dict]:
     Returns
     -------
     (FaultInput, dict)
-        The parsed faults and the FeatureCollection they came from (lon/lat, WGS84; None for CSV).
+        The parsed faults and the FeatureCollection they came from (lon/lat, WGS84).
     """
     path = Path(path)
     if not path.is_file():
         raise InputError(f"fault file {path} does not exist",
                          [problem("no such file", field="--faults")])
-    suffix = path.suffix.lower()
-    if suffix in (".csv", ".txt"):
-        try:
-            text = path.read_text(encoding="utf-8-sig")
-        except (OSError, UnicodeDecodeError) as exc:
-            raise InputError(f"cannot read fault table {path}: {exc}",
-                             [problem(str(exc), field="faults")]) from exc
-        return faults_from_csv_text(text, str(path)), None
-    if suffix in (".geojson", ".json"):
+    if path.suffix.lower() in (".csv", ".txt"):
+        out = _read_csv(path)
+        return out, None
+    if path.suffix.lower() in (".geojson", ".json"):
         try:
             collection = json.loads(path.read_text(encoding="utf-8"))
         except (OSError, ValueError, RecursionError) as exc:  # RecursionError: nested too deeply
@@ -56,5 +70,7 @@ def read_fault_file(path) -> tuple[FaultInput, dict]:
         except Exception as exc:  # noqa: BLE001 - any driver failure is the user's file
             raise InputError(f"cannot read fault file {path}: {exc}",
                              [problem(str(exc), field="--faults")]) from exc
-        collection = collection_from_frame(frame)
+        if frame.crs is not None and not frame.crs.equals("EPSG:4326"):
+            frame = frame.to_crs("EPSG:4326")
+        collection = json.loads(frame.to_json(na="null"))
     return faults_from_geojson(collection, field=str(path.name)), collection

@@ -1,9 +1,7 @@
-"""Stress-indicator files: opening CSV / GeoJSON / GeoPackage / shapefile, writing CSV / GeoJSON.
+"""Stress-indicator files: reading CSV / GeoJSON / GeoPackage into raw tables, writing CSV / GeoJSON.
 
-Parsing and serialising live in :mod:`stressmap.formats.indicators` (re-exported here for the
-names README documents); this module only touches files. Rows are numbered as data rows from 1
-(a CSV header and ``#`` comment lines are not counted; in a vector file, row N is the N-th
-feature).
+Text and GeoJSON conversion is :mod:`stressmap.formats.indicators`; validation and conversion to
+SHmax is :func:`stressmap.analyses.indicators.prepare_indicators`; this module only touches paths.
 """
 
 from __future__ import annotations
@@ -11,7 +9,9 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
+from stressmap.analyses.indicators import prepare_indicators
 from stressmap.errors import IndicatorFileError, problem
+from stressmap.formats.gpkg import frame_to_layer
 from stressmap.formats.indicators import (
     indicators_csv,
     indicators_csvt,
@@ -21,11 +21,11 @@ from stressmap.formats.indicators import (
     table_from_geojson,
 )
 from stressmap.io.files import write_atomic
-from stressmap.formats.gpkg import frame_to_layer
 from stressmap.io.outputs import write_csv_with_sidecars, write_geopackage
 
 __all__ = [
     "read_table",
+    "read_indicators",
     "table_from_csv_text",
     "table_from_geojson",
     "indicators_csv",
@@ -35,9 +35,9 @@ __all__ = [
 
 
 def read_table(path):
-    """Read an indicator file (``.csv``/``.txt``, ``.geojson``/``.json``, ``.gpkg``, ``.shp``).
+    """Read an indicator file (``.csv``/``.txt``, ``.geojson``/``.json``, ``.gpkg``) into a raw table.
 
-    Returns ``(table, problems)`` as :func:`stressmap.formats.indicators.table_from_geojson`.
+    Returns ``(table, problems)`` as :func:`table_from_geojson`.
     """
     path = Path(path)
     if not path.is_file():
@@ -71,8 +71,18 @@ def read_table(path):
     )
 
 
+def read_indicators(path, skip_bad: bool = False):
+    """Read, validate and convert an indicator file (CSV, GeoJSON or GeoPackage).
+
+    See :func:`stressmap.analyses.indicators.prepare_indicators` for the result.
+    """
+    table, probs = read_table(path)
+    return prepare_indicators(table, skip_bad=skip_bad, problems=probs, name=Path(path).name)
+
+
 def write_indicators(frame, path, columns=None, meta: dict | None = None) -> Path:
-    """Write an indicator table as ``.csv`` (with sidecars), ``.geojson`` or ``.gpkg`` (by the suffix)."""
+    """Write an indicator table as ``.csv`` (with sidecars), ``.geojson`` or ``.gpkg`` (by the
+    suffix), atomically."""
     path = Path(path)
     suffix = path.suffix.lower()
     if suffix == ".csv":
