@@ -12,8 +12,9 @@ its footer. Geometry follows the textbook constructions:
   Shmin = Sv and SHmax = Sv that separate the normal, strike-slip and reverse faulting fields
   (each lightly shaded in the colour the maps give that regime and named in words), the
   SHmax = Shmin diagonal, the central estimate and, when sampled, its spread.
-- Map: trace segments coloured by margin on a sequential colour-blind-safe colormap
-  (cividis; low margin dark), strike/dip planes as points, the site with its SHmax direction,
+- Map: trace segments coloured by margin on our own sequential scale (ember: dark brown near
+  failure to pale sand far from it; lightness falls monotonically, so it reads without colour
+  vision), strike/dip planes as points, the site with its SHmax direction,
   a scale bar; longitude scaled by cos(latitude).
 """
 
@@ -35,8 +36,16 @@ __all__ = [
     "fault_map_png", "footer_text", "MARGIN_CMAP", "REGIME_FIELD_STYLE",
 ]
 
-#: Colormap for pore-pressure margins (perceptually uniform, colour-blind safe).
-MARGIN_CMAP = "cividis"
+#: Colours of the pore-pressure margin scale, dark (near failure) to light: our own "ember".
+MARGIN_CMAP = ("#4a1a0c", "#8c3a17", "#c8662a", "#e5a45a", "#f3d9a4", "#faf4e6")
+
+
+def _margin_cmap():
+    """The ember scale of :data:`MARGIN_CMAP` as a matplotlib colormap (low margin dark)."""
+    # matplotlib is only needed for pictures
+    from matplotlib.colors import LinearSegmentedColormap
+
+    return LinearSegmentedColormap.from_list("stressmap-margin", MARGIN_CMAP)
 
 
 def footer_text(result=None) -> str:
@@ -108,7 +117,7 @@ def mohr_figure(result):
     if planes.get("strike_deg") is not None and planes["strike_deg"].size:
         eff = planes["effective_normal_stress_mpa"]
         tau = planes["shear_stress_mpa"]
-        sc = ax.scatter(eff, tau, c=planes["pore_pressure_margin_mpa"], cmap=MARGIN_CMAP,
+        sc = ax.scatter(eff, tau, c=planes["pore_pressure_margin_mpa"], cmap=_margin_cmap(),
                         norm=_margin_norm(planes["pore_pressure_margin_mpa"]), s=28,
                         edgecolors="k", linewidths=0.5, zorder=3, gid="fault-points",
                         label="planes")
@@ -266,7 +275,7 @@ def _draw_traces(ax, result, is_seg, norm):
         return None, []
     segs = result.plane_geometry[is_seg].copy()
     segs[..., 0] = _wrap_lon(segs[..., 0], result.site["lon"])
-    lc = LineCollection(segs, cmap=MARGIN_CMAP, norm=norm, linewidths=2.6, gid="fault-traces")
+    lc = LineCollection(segs, cmap=_margin_cmap(), norm=norm, linewidths=2.6, gid="fault-traces")
     lc.set_array(result.planes["pore_pressure_margin_mpa"][is_seg])
     ax.add_collection(lc)
     return lc, [segs.reshape(-1, 2)]
@@ -298,7 +307,7 @@ def _draw_site_planes(ax, result, unlocated, norm, half):
     ends = np.stack([np.sin(strike) * d / coslat, np.cos(strike) * d], axis=-1)  # (k, 2)
     centre = np.array([s["lon"], s["lat"]])
     segs = np.stack([centre - ends, centre + ends], axis=1)
-    lc = LineCollection(segs, cmap=MARGIN_CMAP, norm=norm, linewidths=1.8, zorder=3,
+    lc = LineCollection(segs, cmap=_margin_cmap(), norm=norm, linewidths=1.8, zorder=3,
                         gid="site-planes")
     lc.set_array(result.planes["pore_pressure_margin_mpa"][unlocated])
     ax.add_collection(lc)
@@ -346,7 +355,7 @@ def fault_map_figure(result):
         labels += texts
     if located.any():
         xy = np.column_stack([_wrap_lon(geom[located, 0, 0], s["lon"]), geom[located, 0, 1]])
-        mappable = ax.scatter(xy[:, 0], xy[:, 1], c=margins[located], cmap=MARGIN_CMAP,
+        mappable = ax.scatter(xy[:, 0], xy[:, 1], c=margins[located], cmap=_margin_cmap(),
                               norm=norm, marker="s", s=36, edgecolors="k", linewidths=0.5,
                               zorder=3, gid="fault-planes")
         pts.append(xy)

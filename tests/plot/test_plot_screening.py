@@ -94,7 +94,7 @@ def test_map_colours_traces_by_margin_and_scale_bar_is_true(result):
     (lc,) = _by_gid(ax, "fault-traces")
     seg = result.planes["kind"] == "trace segment"
     assert_allclose(lc.get_array(), result.planes["pore_pressure_margin_mpa"][seg])
-    assert lc.get_cmap().name == "cividis"
+    assert lc.get_cmap().name == "stressmap-margin"   # our own ember scale
     (bar,) = _by_gid(ax, "scale-bar")
     (x0, x1), (y0, _) = bar.get_data()
     label = [t.get_text() for t in ax.texts if t.get_text().endswith(" km")][0]
