@@ -7,8 +7,9 @@ serialisers of :mod:`stressmap.formats` (one GeoJSON writer for the CLI, the Pyt
 service) and :func:`stressmap.plot.maps.shmax_map`.
 
 Every spatial response carries the caution, the model id and its build time: GeoJSON as
-top-level members, CSV as leading ``# key: value`` lines, netCDF as global attributes, PNG in the
-caption (and the ``X-Stressmap-Caution`` header). Text drawn into pictures goes through
+top-level members, CSV in ``X-Stressmap-*`` response headers (the body is a plain table; pass
+``meta`` to :func:`respond`), netCDF as global attributes, PNG in the caption (and the
+``X-Stressmap-Caution`` header). Text drawn into pictures goes through
 :func:`picture_text` (plain text, bounded length), so a model name cannot make a picture
 arbitrarily large; :func:`init_app` turns matplotlib's mathtext off for the service, so ``$`` in
 any client text is drawn as it is.
@@ -24,6 +25,7 @@ from flask import Response, current_app
 
 from stressmap.constants import CAUTION
 from stressmap.formats import export
+from stressmap.formats.table import metadata_headers
 from stressmap.model import plate_outline
 from stressmap.plot.maps import shmax_map
 
@@ -121,12 +123,12 @@ def render(ds, fmt: str, meta: dict, *, grid: bool, model=None, extra_properties
     """One prediction Dataset as the payload of ``fmt`` (geojson, csv, netcdf, png), ready for
     :func:`respond` (a document for GeoJSON, text for CSV, bytes otherwise)."""
     if fmt == "geojson":
-        return (export.grid_geojson(ds, meta=meta) if grid
-                else export.points_geojson(ds, extra_properties=extra_properties, meta=meta))
-    if fmt == "csv":
-        flat = _flat_meta(meta)
-        return (export.grid_csv(ds, meta=flat) if grid
-                else export.points_csv(ds, meta=flat, extra_properties=extra_properties))
+        return (export.grid_geojson(ds, meta=meta, name=stem) if grid  # name: the GIS layer name
+                else export.points_geojson(ds, extra_properties=extra_properties, meta=meta,
+                                           name=stem))
+    if fmt == "csv":  # a plain table; its metadata travel in headers (respond(..., meta=...))
+        return (export.grid_csv(ds) if grid
+                else export.points_csv(ds, extra_properties=extra_properties))
     if fmt == "netcdf":
         return export.netcdf_bytes(ds, _flat_meta(meta))
     if fmt == "png":
@@ -135,7 +137,8 @@ def render(ds, fmt: str, meta: dict, *, grid: bool, model=None, extra_properties
 
 
 def respond(payload, fmt: str, *, stem: str | None = None, status: int = 200,
-            headers: dict | None = None, caution_header: bool | None = None) -> Response:
+            headers: dict | None = None, caution_header: bool | None = None,
+            meta: dict | None = None) -> Response:
     """The response for a computed ``payload`` in ``fmt`` (json, geojson, csv, netcdf, png).
 
     JSON and GeoJSON documents are written by the app's JSON provider (numpy types, no NaN);
@@ -144,6 +147,8 @@ def respond(payload, fmt: str, *, stem: str | None = None, status: int = 200,
     for any format.
     """
     out = dict(headers or {})
+    if fmt == "csv" and meta:  # a CSV body is a plain table: metadata in headers
+        out.update(metadata_headers(meta))
     if fmt in ("json", "geojson"):
         body = payload if isinstance(payload, (str, bytes)) else current_app.json.dumps(payload)
     else:

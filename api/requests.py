@@ -22,10 +22,7 @@ from stressmap_api.grids import check_references
 from stressmap_api.problems import ApiProblem
 from stressmap_api.store import document_digest
 
-from stressmap.analyses.indicators import (
-    indicators_from_csv_text,
-    indicators_from_geojson,
-)
+from stressmap.formats.indicators import indicators_from_csv_text, indicators_from_geojson
 from stressmap.errors import InputError, problem
 from stressmap.geo import grid
 from stressmap.model.plate import parse_plate

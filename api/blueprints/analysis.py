@@ -30,7 +30,6 @@ from stressmap_api.tasks import ENSEMBLE_FILE, ensemble_links, run_ensemble_job
 from stressmap.analyses.calibrate import calibrate
 from stressmap.analyses.ensemble import (
     DEFAULT_PERCENTILES,
-    ensemble_png,
     flatten_percentiles,
     validate_distributions,
 )
@@ -38,6 +37,7 @@ from stressmap.errors import InputError, problem
 from stressmap.formats import export
 from stressmap.formats.hdf5lock import NETCDF_LOCK
 from stressmap.model import plate_outline
+from stressmap.plot.ensemble import ensemble_png
 from stressmap.plot.maps import ensemble_regime_png
 
 __all__ = ["ENSEMBLE_FILE", "bp", "run_calibration"]

@@ -6,7 +6,7 @@ misfit and regime agreement, and the summary. Answers as JSON (default), GeoJSON
 (``picture``: map or rose).
 
 ``POST /indicators/smooth`` -- the observed SHmax field on a grid (``bbox``, ``radius_km``,
-optional ``spacing_km``, ``min_count``, ``max_dispersion_deg``) as GeoJSON (default) or CF
+optional ``spacing_km``, ``min_count``, ``max_halfwidth_deg``) as GeoJSON (default) or CF
 netCDF.
 
 Views are thin: validate, call the core (:mod:`stressmap.analyses.indicators`, :mod:`stressmap.analyses.compare`,
@@ -26,13 +26,14 @@ from stressmap_api.store import check_id, get_store
 from stressmap.analyses.compare import COMPARISON_COLUMNS, compare
 from stressmap.analyses.indicators import CONVERT_COLUMNS
 from stressmap.analyses.observed import (
-    observed_geojson,
+    DEFAULT_MAX_HALFWIDTH_DEG,
+    DEFAULT_MIN_COUNT,
     observed_grid,
-    observed_netcdf_bytes,
 )
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
-from stressmap.io.indicators import indicators_csv, indicators_geojson
+from stressmap.formats.indicators import indicators_csv, indicators_geojson
+from stressmap.formats.observed import observed_geojson, observed_netcdf_bytes
 from stressmap.plot.indicators import comparison_map_png, rose_png
 
 __all__ = ["COMPARE_FORMATS", "SMOOTH_FORMATS", "bp"]
@@ -44,7 +45,7 @@ SMOOTH_FORMATS = ("geojson", "netcdf")
 PICTURES = ("map", "rose")
 _COMPARE_MEMBERS = {"indicators", "indicators_csv", "weights", "skip_bad", "format", "picture"}
 _SMOOTH_MEMBERS = {"indicators", "indicators_csv", "skip_bad", "bbox", "radius_km", "spacing_km",
-                   "min_count", "max_dispersion_deg", "format"}
+                   "min_count", "max_halfwidth_deg", "format"}
 
 
 def _indicators(body):
@@ -99,19 +100,18 @@ def compare_model(model_id: str):
     meta = {"caution": CAUTION, "model_id": model_id, "build_time": info.get("build_time") or ""}
     result = run_limited(_run_compare, model, gdf, weights, fmt, picture, meta)
     stem = f"compare-{model_id[:8]}"
-    if fmt == "csv":
-        lines = "".join(f"# skipped: row {p.get('row')}, {p.get('field')}: {p['message']}\n"
-                        for p in skipped)
-        return respond(lines + result, fmt, stem=stem)
+    if fmt == "csv":  # a plain table: the caution and the skipped rows travel in headers
+        return respond(result, fmt, stem=stem, meta=meta | {"skipped": [
+            f"row {p.get('row')}, {p.get('field')}: {p['message']}" for p in skipped]})
     if fmt != "png":
         result["skipped"] = skipped
     return respond(result, fmt, stem=stem)
 
 
-def _run_smooth(gdf, bbox, radius_km, spacing_km, min_count, max_dispersion_deg, max_nodes, fmt):
+def _run_smooth(gdf, bbox, radius_km, spacing_km, min_count, max_halfwidth_deg, max_nodes, fmt):
 
     ds = observed_grid(gdf, bbox=bbox, radius_km=radius_km, spacing_km=spacing_km, min_count=min_count,
-                       max_dispersion_deg=max_dispersion_deg, max_nodes=max_nodes)
+                       max_halfwidth_deg=max_halfwidth_deg, max_nodes=max_nodes)
     return observed_netcdf_bytes(ds) if fmt == "netcdf" else observed_geojson(ds)
 
 
@@ -126,12 +126,12 @@ def smooth():
     radius = requests.number(body.get("radius_km"), "radius_km", positive=True)
     spacing = (None if body.get("spacing_km") is None
                else requests.parse_spacing(body["spacing_km"], "spacing_km"))
-    min_count = requests.count(body.get("min_count"), "min_count", 3, low=1)
-    max_disp = requests.number(body.get("max_dispersion_deg"), "max_dispersion_deg", 25.0,
-                               positive=True)
+    min_count = requests.count(body.get("min_count"), "min_count", DEFAULT_MIN_COUNT, low=1)
+    max_half = requests.number(body.get("max_halfwidth_deg"), "max_halfwidth_deg",
+                               DEFAULT_MAX_HALFWIDTH_DEG, positive=True)
     gdf = _indicators(body)
     max_nodes = int(current_app.config.get("MAX_GRID_POINTS") or 0) or 1_000_000
-    result = run_limited(_run_smooth, gdf, bbox, radius, spacing, min_count, max_disp, max_nodes, fmt)
+    result = run_limited(_run_smooth, gdf, bbox, radius, spacing, min_count, max_half, max_nodes, fmt)
     if fmt != "netcdf":
         result["skipped"] = gdf.attrs.get("skipped") or []
     return respond(result, fmt, stem="observed-shmax")

@@ -118,9 +118,10 @@ def predict(model_id: str):
     else:
         ds = run_limited(_predict_points, model, target.lon, target.lat, weights)
     stem = f"stressmap-{model_id[:8]}-{'grid' if grid else 'points'}"
-    payload = run_limited(render, ds, fmt, output_meta(meta, weights), grid=grid, model=model,
-                          extra_properties=props)
-    return respond(payload, fmt, stem=stem)
+    out_meta = output_meta(meta, weights)
+    payload = run_limited(render, ds, fmt, out_meta, grid=grid, model=model,
+                          extra_properties=props, stem=stem)
+    return respond(payload, fmt, stem=stem, meta=out_meta)
 
 
 @bp.get("/models/<model_id>/field")
@@ -135,5 +136,6 @@ def get_field(model_id: str):
     weights = requests.parse_weights_text(request.args.get("weights"))
     model = store.load(model_id)
     ds = run_limited(predict_region, model, bbox, spacing, None, weights)
-    payload = run_limited(render, ds, fmt, output_meta(meta, weights), grid=True, model=model)
-    return respond(payload, fmt, stem=f"stressmap-{model_id[:8]}-field")
+    out_meta, stem = output_meta(meta, weights), f"stressmap-{model_id[:8]}-field"
+    payload = run_limited(render, ds, fmt, out_meta, grid=True, model=model, stem=stem)
+    return respond(payload, fmt, stem=stem, meta=out_meta)

@@ -213,5 +213,5 @@ def predict(network_id: str):
                             "build_time": model.summary.get("build_time")}, weights)
     stem = f"stressmap-network-{network_id[:8]}-{'grid' if grid else 'points'}"
     payload = run_limited(render, ds, fmt, out_meta, grid=grid, model=model,
-                          extra_properties=target.properties)
-    return respond(payload, fmt, stem=stem)
+                          extra_properties=target.properties, stem=stem)
+    return respond(payload, fmt, stem=stem, meta=out_meta)

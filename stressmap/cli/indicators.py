@@ -23,16 +23,18 @@ import sys
 from pathlib import Path
 
 from stressmap.analyses.compare import COMPARISON_COLUMNS, compare
-from stressmap.analyses.indicators import CONVERT_COLUMNS, read_indicators, summarise
+from stressmap.analyses.indicators import CONVERT_COLUMNS, summarise
 from stressmap.analyses.observed import (
-    observed_geojson,
+    DEFAULT_MAX_HALFWIDTH_DEG,
+    DEFAULT_MIN_COUNT,
     observed_grid,
-    observed_netcdf_bytes,
 )
 from stressmap.cli.model import parse_bbox, parse_weights
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
-from stressmap.io.indicators import write_indicators
+from stressmap.formats.observed import observed_geojson, observed_netcdf_bytes
+from stressmap.io.files import write_atomic
+from stressmap.io.indicators import read_indicators, write_indicators
 from stressmap.io.networkdir import read_any_model
 from stressmap.model.network_predict import plate_at
 from stressmap.plot.indicators import comparison_map_png, rose_png
@@ -61,8 +63,8 @@ def _output_columns(gdf, leading):
 def _cmd_convert(args) -> int:
 
     out = Path(args.output)
-    if out.suffix.lower() not in (".csv", ".geojson", ".json"):
-        raise InputError("output must end in .csv or .geojson",
+    if out.suffix.lower() not in (".csv", ".geojson", ".json", ".gpkg"):
+        raise InputError("output must end in .csv, .geojson or .gpkg",
                          [problem(f"got {out.name!r}", field="-o/--output")])
     gdf = _read(args)
     write_indicators(gdf.reset_index(drop=True), out, columns=_output_columns(gdf, CONVERT_COLUMNS))
@@ -111,7 +113,7 @@ def _cmd_smooth(args) -> int:
     gdf = _read(args)
     ds = observed_grid(gdf, bbox=parse_bbox(args.bbox), radius_km=args.radius_km,
                        spacing_km=args.spacing_km, min_count=args.min_count,
-                       max_dispersion_deg=args.max_dispersion_deg)
+                       max_halfwidth_deg=args.max_halfwidth_deg)
     meta = {"source_file": Path(args.file).name}
     if args.output is None:
         print(json.dumps(observed_geojson(ds, meta), allow_nan=False))
@@ -125,10 +127,7 @@ def _cmd_smooth(args) -> int:
     else:
         raise InputError("output must end in .nc or .geojson",
                          [problem(f"got {out.name!r}", field="-o/--output")])
-    out.parent.mkdir(parents=True, exist_ok=True)
-    tmp = out.with_name(out.name + ".tmp")
-    tmp.write_bytes(data)
-    tmp.replace(out)
+    write_atomic(out, data)
     good = int((ds["status"].values == 0).sum())
     print(f"wrote {ds.sizes['lat']} x {ds.sizes['lon']} grid to {out}: {good} node(s) with a mean")
     return 0
@@ -182,8 +181,9 @@ def _cmd_compare(args) -> int:
     flat = table.reset_index(drop=True)
     write_indicators(flat, out / "indicators.geojson", columns=cols, meta=meta)
     write_indicators(flat, out / "indicators.csv", columns=cols, meta=meta)
-    (out / "summary.json").write_text(json.dumps(_nan_to_none(summary), indent=2), encoding="utf-8")
-    written = ["indicators.geojson", "indicators.csv", "summary.json"]
+    write_indicators(flat, out / "indicators.gpkg", columns=cols, meta=meta)
+    write_atomic(out / "summary.json", json.dumps(_nan_to_none(summary), indent=2))
+    written = ["indicators.geojson", "indicators.csv", "indicators.gpkg", "summary.json"]
     if not args.no_pictures:
 
         caption = f"Model {model_id}, built {summary.get('model_build_time', '')}"
@@ -215,7 +215,7 @@ def register(sub) -> None:
                                        "axes and their faulting class.")
     common(conv)
     conv.add_argument("-o", "--output", required=True, metavar="OUT",
-                      help="output file, .csv or .geojson")
+                      help="output file, .csv, .geojson or .gpkg")
     conv.set_defaults(handler=_cmd_convert)
 
     summ = isub.add_parser("summarise", help="counts and axial statistics per indicator type")
@@ -226,16 +226,19 @@ def register(sub) -> None:
     sm = sub.add_parser("smooth", help="grid the observed SHmax field of an indicator file",
                         description="Weighted axial mean SHmax of the indicators within a search "
                                     "radius of each grid node (distance and uncertainty weights), "
-                                    "with count and dispersion per node.")
+                                    "with count, dispersion and the confidence half-width of the mean per node.")
     common(sm)
     sm.add_argument("--bbox", required=True, metavar="W,S,E,N",
                     help="grid bounding box in degrees (write --bbox=W,S,E,N when W is negative)")
     sm.add_argument("--radius-km", required=True, type=float, metavar="R", help="search radius, km")
     sm.add_argument("--spacing-km", type=float, metavar="K", help="node spacing, km (default R/2)")
-    sm.add_argument("--min-count", type=int, default=3, metavar="N",
-                    help="fewest indicators within the radius for a mean (default 3)")
-    sm.add_argument("--max-dispersion-deg", type=float, default=25.0, metavar="D",
-                    help="largest axial standard deviation for a mean, degrees (default 25)")
+    sm.add_argument("--min-count", type=int, default=DEFAULT_MIN_COUNT, metavar="N",
+                    help="fewest indicators within the radius for a mean (default "
+                         f"{DEFAULT_MIN_COUNT}: a mean at the half-width limit is then significant "
+                         "by the Rayleigh test at 1 %%)")
+    sm.add_argument("--max-halfwidth-deg", type=float, default=DEFAULT_MAX_HALFWIDTH_DEG,
+                    metavar="H", help="largest 95 %% confidence half-width of a node's mean SHmax, "
+                                      f"degrees (default {DEFAULT_MAX_HALFWIDTH_DEG:g})")
     sm.add_argument("-o", "--output", metavar="OUT",
                     help="output file, .nc (CF netCDF) or .geojson; GeoJSON on stdout if omitted")
     sm.set_defaults(handler=_cmd_smooth)

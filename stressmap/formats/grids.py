@@ -27,6 +27,7 @@ import numpy as np
 import tifffile
 import xarray as xr
 
+from stressmap.formats.hdf5lock import NETCDF_LOCK
 from stressmap.errors import InputError, problem
 from stressmap.geo.raster import Raster, as_raster
 
@@ -201,7 +202,13 @@ def raster_from_dataset(ds, role: str, variable: str | None = None, bbox=None,
 
 def netcdf_raster(data: bytes, role: str, variable: str | None = None, bbox=None,
                   max_cells: int = MAX_GRID_CELLS) -> Raster:
-    """A Raster from the bytes of a netCDF file (read in memory with netCDF4)."""
+    """A Raster from the bytes of a netCDF file (read in memory with netCDF4, under the
+    process-wide HDF5 lock)."""
+    with NETCDF_LOCK:
+        return _netcdf_raster(data, role, variable, bbox, max_cells)
+
+
+def _netcdf_raster(data: bytes, role: str, variable, bbox, max_cells) -> Raster:
     try:
         nc = netCDF4.Dataset("upload.nc", mode="r", memory=bytes(data))
     except (OSError, ValueError, RuntimeError) as exc:
@@ -300,4 +307,5 @@ def raster_netcdf_bytes(raster: Raster, attrs: dict | None = None) -> bytes:
         coords={"lat": ("lat", raster.lat, {"standard_name": "latitude", "units": "degrees_north"}),
                 "lon": ("lon", raster.lon, {"standard_name": "longitude", "units": "degrees_east"})},
         attrs={"Conventions": "CF-1.8", **(attrs or {})})
-    return bytes(ds.to_netcdf())
+    with NETCDF_LOCK:  # HDF5 is not thread-safe
+        return bytes(ds.to_netcdf())

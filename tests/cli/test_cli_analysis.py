@@ -110,7 +110,7 @@ def test_ensemble_grid_netcdf_and_png(coarse_demo_dir, tmp_path, capsys):
     capsys.readouterr()
     with xr.open_dataset(nc) as ds:
         assert ds.attrs["caution"] == CAUTION
-        assert ds["s_hmax_mpa"].dims == ("lat", "lon", "percentile")
+        assert ds["s_hmax_mpa"].dims == ("percentile", "lat", "lon")  # one raster band per percentile
         assert list(ds["percentile"].values) == [5.0, 50.0, 95.0]
         assert ds.sizes["member"] == 50
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"   # PNG signature (PNG spec, section 5.2)
@@ -123,6 +123,20 @@ def test_ensemble_bad_output_and_distribution(coarse_demo_dir, points_csv, tmp_p
                  "--vary", "collision=gamma:1:2", "-o", str(tmp_path / "x.nc")]) == 2
     err = capsys.readouterr().err
     assert "distributions.collision.distribution" in err
+
+
+def test_ensemble_without_vary_says_which_defaults_it_varied(coarse_demo_dir, tmp_path, capsys):
+    # The README example `ensemble ... --members 2000 -o spread.png` gives no distribution: the
+    # members used to be identical (spread 0). Now the documented defaults vary and it says so.
+    nc = tmp_path / "ens.nc"
+    assert main(["ensemble", str(coarse_demo_dir), "--bbox=-30,-30,-5,-5", "--spacing-km", "500",
+                 "--members", "40", "-o", str(nc)]) == 0
+    out = capsys.readouterr().out
+    assert "note: distributions: default" in out and "0.5 to 1.5" in out
+    with xr.open_dataset(nc) as ds:
+        inside = ds["inside"].values.astype(bool)
+        assert np.nanmax(ds["shmax_std_deg"].values[inside]) > 0
+        assert json.loads(ds.attrs["distributions"])
 
 
 def test_ensemble_regime_probability_map(coarse_demo_dir, tmp_path, capsys):

@@ -13,7 +13,8 @@ from numpy.testing import assert_allclose
 
 from stressmap.cli import main
 from stressmap.constants import CAUTION
-from stressmap.analyses.indicators import CONVERT_COLUMNS, read_indicators
+from stressmap.analyses.indicators import CONVERT_COLUMNS
+from stressmap.io.indicators import read_indicators
 
 DATA = Path(__file__).parents[1] / "data"
 SMALL = DATA / "indicators_small.csv"
@@ -110,8 +111,9 @@ def test_compare_writes_everything(coarse_demo_dir, tmp_path, capsys):
     assert summary["caution"] == CAUTION and summary["model_id"] == coarse_demo_dir.name
     assert summary["overall"]["count"] > 250
     csv_text = (out / "indicators.csv").read_text()
-    assert csv_text.startswith("# caution: ")
-    table = pd.read_csv(out / "indicators.csv", comment="#")
+    assert csv_text.startswith("id,lon,lat,")  # header first; caution in the sidecar
+    assert json.loads((out / "indicators.json").read_text())["caution"] == CAUTION
+    table = pd.read_csv(out / "indicators.csv")
     assert {"misfit_deg", "predicted_shmax_azimuth_deg", "regime_agreement", "province"} <= set(table.columns)
     fc = json.loads((out / "indicators.geojson").read_text())
     assert fc["caution"] == CAUTION and len(fc["features"]) == len(table)
@@ -132,8 +134,8 @@ def test_compare_weights_and_errors(coarse_demo_dir, tmp_path, capsys):
 
 
 def test_demo_data_is_labelled_fictional_and_complete():
-    head = DEMO.read_text().splitlines()[:4]
-    assert any("FICTIONAL" in line for line in head)
+    assert DEMO.read_text().startswith("id,lon,lat,")  # a plain table; the label is in the sidecar
+    assert "FICTIONAL" in json.loads(DEMO.with_suffix(".json").read_text())["description"]
     gdf = read_indicators(DEMO)
     assert 250 <= len(gdf) <= 500
     assert set(gdf["type"]) == {"breakout", "tensile_fracture", "hydraulic_fracture", "overcoring",
@@ -141,3 +143,22 @@ def test_demo_data_is_labelled_fictional_and_complete():
     assert (gdf["source"].str.contains("fictional")).all()
     assert (gdf["note"].fillna("").str.contains("anomaly")).sum() >= 20
     assert np.isfinite(gdf["shmax_azimuth_deg"]).mean() > 0.95
+
+
+def test_demo_indicator_ids_come_from_our_own_type_names():
+    # Ids are MER-<our type name>-NNN (anomalies MER-local-anomaly-NNN, MER-random-orientation-NNN),
+    # not two-letter type codes.
+    import pandas as pd
+
+    from stressmap.analyses.indicators import TYPES
+    from stressmap.data.make_demo_indicators import demo_id
+
+    table = pd.read_csv(Path(__file__).parents[2] / "stressmap" / "data" / "demo_indicators.csv",
+                        comment="#", dtype=str, keep_default_na=False)
+    labels = table["id"].str.extract(r"^MER-(.+)-(\d{3})$")
+    assert labels.notna().all().all()
+    anomaly = table["note"].str.startswith("deliberate local anomaly")
+    assert (labels[0][~anomaly] == table["type"][~anomaly].str.replace("_", "-")).all()
+    assert set(labels[0][anomaly]) == {"local-anomaly", "random-orientation"}
+    assert set(t.replace("_", "-") for t in TYPES) <= set(labels[0])
+    assert table["id"].is_unique and demo_id("breakout", 1) == "MER-breakout-001"

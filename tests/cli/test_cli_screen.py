@@ -81,20 +81,24 @@ def test_traces_from_a_geojson_file_get_right_hand_rule_strikes(capsys, tmp_path
     for s in segs:  # dipping east -> strike near north (0/360), dip direction near 90
         assert min(s["strike_deg"], 360 - s["strike_deg"]) < 5.0
         assert abs(s["dip_direction_deg"] - 90.0) < 5.0
-    geo = json.loads(out_geo.read_text())
-    assert geo["type"] == "FeatureCollection" and geo["caution"].startswith(CAUTION)
-    kinds = sorted(f["geometry"]["type"] for f in geo["features"])
-    assert kinds == ["LineString", "LineString", "Point"]
+    kinds = {}
+    for layer in ("traces", "planes", "sites"):  # one geometry kind per layer
+        geo = json.loads((tmp_path / f"out_{layer}.geojson").read_text())
+        assert geo["type"] == "FeatureCollection" and geo["caution"].startswith(CAUTION)
+        assert geo["name"] == layer
+        kinds[layer] = sorted(f["geometry"]["type"] for f in geo["features"])
+    assert kinds == {"traces": ["LineString", "LineString"], "planes": ["Point"], "sites": ["Point"]}
 
 
 def test_csv_file_carries_the_caution(capsys, tmp_path):
     out = tmp_path / "planes.csv"
     assert main([*BASE, *ORIENT, "--plane", "040/60", "--csv", str(out)]) == 0
     text = out.read_text()
-    assert text.startswith(f"# caution: {CAUTION}")
+    assert text.startswith("lon,lat,at_site,")  # header first
+    assert json.loads(out.with_suffix(".json").read_text())["caution"].startswith(CAUTION)
     import pandas as pd
 
-    frame = pd.read_csv(out, comment="#")
+    frame = pd.read_csv(out)
     assert list(frame["strike_deg"]) == [40.0]
     assert "pore_pressure_margin_mpa" in frame.columns
     printed = capsys.readouterr().out
@@ -110,12 +114,12 @@ def test_sampling_reports_percentiles_and_probability(capsys):
     unc = doc["uncertainty"]
     assert unc["samples"] == 400 and "sigma 10 deg (user-given)" in unc["orientation_source"]
     for p in doc["planes"]:
-        assert p["pore_pressure_margin_p05_mpa"] <= p["pore_pressure_margin_p50_mpa"] <= \
-            p["pore_pressure_margin_p95_mpa"]
-        assert 0.0 <= p["probability_margin_below_threshold"] <= 1.0
+        assert p["margin_band_low_mpa"] <= p["margin_median_mpa"] <= p["margin_band_high_mpa"]
+        assert 0.0 <= p["reactivation_share"] <= 1.0
     # the near-critical plane is far more likely below 2 MPa than the steep cross plane
-    assert doc["planes"][0]["probability_margin_below_threshold"] > 0.3
-    assert doc["planes"][1]["probability_margin_below_threshold"] < 0.05
+    assert doc["planes"][0]["reactivation_share"] > 0.3
+    assert doc["planes"][1]["reactivation_share"] < 0.05
+    assert unc["margin_band_percentiles"] == [10.0, 90.0]
 
 
 @pytest.mark.parametrize(
@@ -165,6 +169,22 @@ def test_site_outside_the_model_plate(capsys, coarse_demo_dir):
     assert main(["screen", "--site=150,60", "--depth-km", "3", "--model",
                  str(coarse_demo_dir)]) == 2
     assert "outside" in capsys.readouterr().err
+
+
+def test_density_profile_with_the_optional_gradient_left_empty(capsys, tmp_path):
+    # README: `gradient_kg_m3_per_km` is optional per layer; an empty cell means no gradient
+    # (it was refused as "not a number").
+    prof = tmp_path / "layers.csv"
+    prof.write_text("top_km,density_kg_m3,gradient_kg_m3_per_km\n0,2200,\n1,2400,100\n")
+    doc = run_json(capsys, *ORIENT, "--density-profile", str(prof), "--plane", "040/60")
+    # Sv = g (2200 * 1 km + 2400 * 2 km + 100 * 2^2 / 2) -- the analytic integral of the layers
+    assert_allclose(doc["sv_mpa"], 9.81 * (2200 * 1e3 + 2400 * 2e3 + 100 * 4 / 2 * 1e3) / 1e6,
+                    rtol=1e-12)
+    assert doc["density_profile"]["gradient_kg_m3_per_km"][0] == 0.0
+    bad = tmp_path / "bad.csv"
+    bad.write_text("top_km,density_kg_m3,gradient_kg_m3_per_km\n0,2200,x\n")
+    assert main([*BASE, *ORIENT, "--density-profile", str(bad)]) == 2
+    assert "gradient_kg_m3_per_km" in capsys.readouterr().err
 
 
 def test_hints_name_flags_not_request_fields(capsys, coarse_demo_dir):

@@ -66,14 +66,15 @@ def test_grid_geojson_drops_outside_nodes(grid_ds):
     assert coords == [(0.0, 10.0), (0.0, 11.0), (1.0, 11.0), (2.0, 10.0)]
 
 
-def test_csv_round_trip_with_meta_comments(point_ds):
+def test_csv_header_first_and_meta_kept_out_of_the_table(point_ds):
     import pandas as pd
 
     text = export.points_csv(point_ds, {"caution": CAUTION})
-    assert text.startswith(f"# caution: {CAUTION}\n")
-    frame = pd.read_csv(io.StringIO(text), comment="#")
+    assert text.startswith("lon,lat,") and CAUTION not in text  # the caution goes in the sidecar
+    frame = pd.read_csv(io.StringIO(text))
     assert list(frame.columns[:2]) == ["lon", "lat"]
     assert_allclose(frame["shmax_azimuth_deg"][:2], [12.5, 179.0])
+    assert frame["inside"].tolist() == [True, True, False]  # pandas reads true/false as booleans
 
 
 @pytest.mark.parametrize("payload", ["=1+2", "+cmd", "-2+3", "@SUM(A1)", "\t=x"])
@@ -91,3 +92,13 @@ def test_netcdf_reads_back_with_xarray(tmp_path, grid_ds):
         assert back.attrs["caution"] == CAUTION
         assert back["inside"].dtype == np.int8 and back["inside"].attrs["flag_meanings"] == "false true"
         assert_allclose(back["shmax_azimuth_deg"].values, grid_ds["shmax_azimuth_deg"].values)
+
+
+def test_geojson_outside_the_plate_gives_null_regime(point_ds):
+    # README: points outside the plate have `inside: false` and null values (JSON null, RFC 8259),
+    # the regime included (it was "").
+    fc = export.points_geojson(point_ds)
+    outside = fc["features"][2]["properties"]
+    assert outside["inside"] is False
+    assert outside["regime"] is None and outside["shmax_azimuth_deg"] is None
+    assert fc["features"][0]["properties"]["regime"] == "reverse"
