@@ -161,6 +161,30 @@
       for (let lon = w; lon <= e; lon += Math.max(step / 4, 0.5)) pts.push([lat, lon]);
       layers.graticule.addLayer(L.polyline(pts, style));
     }
+    // degree labels: meridians along the bottom edge of the view, parallels along the left edge
+    const pad = 0.02;
+    const labelLat = b.getSouth() + pad * (b.getNorth() - b.getSouth());
+    const labelLon = b.getWest() + pad * (b.getEast() - b.getWest());
+    for (let lon = w; lon <= e; lon += step) {
+      if (lon > b.getWest() && lon < b.getEast()) addGraticuleLabel([labelLat, lon], lonText(lon), 'center');
+    }
+    for (let lat = s; lat <= n; lat += step) {
+      if (lat > b.getSouth() && lat < b.getNorth()) addGraticuleLabel([lat, labelLon], latText(lat), 'left');
+    }
+  }
+
+  function lonText(lon) {
+    const x = ((lon + 180) % 360 + 360) % 360 - 180;  // wrapped to [-180, 180)
+    return x === 0 || x === -180 ? Math.abs(x) + '\u00b0' : Math.abs(x) + '\u00b0' + (x < 0 ? 'W' : 'E');
+  }
+  const latText = (lat) => (lat === 0 ? '0\u00b0' : Math.abs(lat) + '\u00b0' + (lat < 0 ? 'S' : 'N'));
+
+  function addGraticuleLabel(latlng, text, align) {
+    const icon = L.divIcon({className: 'grat-label', html: '', iconSize: null,
+      iconAnchor: align === 'center' ? [14, 14] : [0, 7]});
+    const m = L.marker(latlng, {icon: icon, interactive: false, keyboard: false});
+    m.on('add', () => { m.getElement().textContent = text; });
+    layers.graticule.addLayer(m);
   }
 
   // ------------------------------------------------------------------ legend
