@@ -322,9 +322,12 @@ def fault_map_figure(result):
         labels += texts
     if located.any():
         xy = np.column_stack([_wrap_lon(geom[located, 0, 0], s["lon"]), geom[located, 0, 1]])
-        mappable = ax.scatter(xy[:, 0], xy[:, 1], c=margins[located], cmap=MARGIN_CMAP,
-                              norm=norm, marker="s", s=36, edgecolors="k", linewidths=0.5,
-                              zorder=3, gid="fault-planes")
+        # planes logged at one place share a square: the least margin is drawn last, on top,
+        # and above the site star (a well's image-log planes sit at the site)
+        order = np.argsort(-margins[located], kind="stable")
+        mappable = ax.scatter(xy[order, 0], xy[order, 1], c=margins[located][order],
+                              cmap=MARGIN_CMAP, norm=norm, marker="s", s=36, edgecolors="k",
+                              linewidths=0.5, zorder=4.5, gid="fault-planes")
         pts.append(xy)
         labels_xy.append(xy)
         names = np.asarray(planes["name"], dtype=object)[located]
@@ -348,6 +351,7 @@ def fault_map_figure(result):
     freeze_layout(fig)
     renderer = fig.canvas.get_renderer()
     taken = [tuple(ax.get_legend().get_window_extent(renderer).extents)]
+    taken += _marks_to_keep_clear(ax, renderer, labels_xy + [site_xy])
     if labels:  # every fault and located plane is named
         placed = place_labels(ax, np.concatenate(labels_xy), labels, fontsize=7,
                               gid="fault-label", reserved=taken)
@@ -356,6 +360,19 @@ def fault_map_figure(result):
     place_labels(ax, site_xy[:k], site_labels[:k], fontsize=7, gid="fault-label",
                  reserved=taken, optional=True)
     return fig
+
+
+def _marks_to_keep_clear(ax, renderer, anchors) -> list:
+    """Display boxes that labels must not cover: the site star, the scale bar, the north
+    arrow, the map note and a small box around every labelled point (so that one fault's name
+    never hides another's square or trace middle)."""
+    gids = {"site", "scale-bar-panel", "north-arrow", "north-label", "map-note"}
+    boxes = [tuple(a.get_window_extent(renderer).extents) for a in ax.get_children()
+             if a.get_gid() in gids]
+    pts = np.concatenate([np.reshape(a, (-1, 2)) for a in anchors]) if anchors else np.zeros((0, 2))
+    r = 3.0  # pixels around an anchor
+    boxes += [(x - r, y - r, x + r, y + r) for x, y in ax.transData.transform(pts)]
+    return boxes
 
 
 #: How many planes without a location (least margin first) may get a rank label on the map.
