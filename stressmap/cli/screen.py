@@ -57,15 +57,19 @@ def read_density_profile(path) -> dict:
     """Density profile file (CSV): columns ``top_km``, ``density_kg_m3`` and optionally
     ``gradient_kg_m3_per_km``; one row per layer from the surface down; '#' starts a comment.
     """
-    frame = read_csv_table(path, ("top_km", "density_kg_m3"), what="density profile",
-                           field="--density-profile")
-    out: dict = {}
-    problems: list = []
-    for col in ("top_km", "density_kg_m3", "gradient_kg_m3_per_km"):
-        if col in frame.columns:
-            out[col] = [validate.number(validate.cell(v), col, problems, row=i + 1, text=True, required=True)
-                        for i, v in enumerate(frame[col].tolist())]
-    validate.raise_problems(problems, f"density profile {path}: {len(problems)} bad cell(s)")
+    try:
+        frame = read_csv_table(path, ("top_km", "density_kg_m3"), what="density profile",
+                               field="--density-profile")
+        out: dict = {}
+        problems: list = []
+        for col in ("top_km", "density_kg_m3", "gradient_kg_m3_per_km"):
+            if col in frame.columns:
+                out[col] = [validate.number(validate.cell(v), col, problems, row=i + 1, text=True,
+                                            required=True)
+                            for i, v in enumerate(frame[col].tolist())]
+        validate.raise_problems(problems, f"density profile {path}: {len(problems)} bad cell(s)")
+    except InputError as exc:  # the fields are the file's columns: they keep their names
+        raise InputError(exc.message, [{**p, "file": str(path)} for p in exc.problems]) from None
     return out
 
 
@@ -211,7 +215,10 @@ def flag_words(text: str, flags: dict) -> str:
 
 def _with_flags(exc: InputError, flags: dict) -> InputError:
     """The same error with request fields named as the flags that set them."""
-    probs = [{**p, "message": flag_words(p["message"], flags),
+    if exc.problems and all(p.get("file") for p in exc.problems):
+        return exc  # about a file's columns and rows (``density_kg_m3`` is a column there)
+    probs = [p if p.get("file") else
+             {**p, "message": flag_words(p["message"], flags),
               **({"field": flag_words(p["field"], flags)} if p.get("field") else {})}
              for p in exc.problems]
     return InputError(flag_words(exc.message, flags), probs)
