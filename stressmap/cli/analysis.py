@@ -19,7 +19,7 @@ from stressmap.cli._progress import progress_bar
 from stressmap.cli.model import parse_bbox
 from stressmap.errors import InputError, problem
 from stressmap.formats import export
-from stressmap.io.modeldir import read_model
+from stressmap.io.networkdir import read_any_model
 from stressmap.io.points import read_points
 from stressmap.model import plate_outline
 from stressmap.plot.maps import ensemble_regime_png
@@ -151,7 +151,7 @@ def _read_model(path: str):
         raise InputError(f"model directory not found: {path}",
                          [problem("not a directory written by `stressmap build`",
                                   field="MODEL_DIR")])
-    return read_model(path)
+    return read_any_model(path)
 
 
 def _cmd_calibrate(args) -> int:

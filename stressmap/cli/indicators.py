@@ -33,7 +33,8 @@ from stressmap.cli.model import parse_bbox, parse_weights
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
 from stressmap.io.indicators import write_indicators
-from stressmap.io.modeldir import read_model
+from stressmap.io.networkdir import read_any_model
+from stressmap.model.network_predict import plate_at
 from stressmap.plot.indicators import comparison_map_png, rose_png
 
 __all__ = ["register", "summary_text"]
@@ -164,17 +165,20 @@ def _cmd_compare(args) -> int:
     if not model_dir.is_dir():
         raise InputError(f"model directory not found: {model_dir}",
                          [problem("not a directory", field="MODEL_DIR")])
-    model = read_model(model_dir)
+    model = read_any_model(model_dir)
     weights = parse_weights(args.weights)
     gdf = _read(args)
     table, summary = compare(model, gdf, weights=weights)
+    if "element_plate" in model.fields:  # a network: name the plate of each indicator
+        table["plate"] = plate_at(model, table["lon"].to_numpy(float), table["lat"].to_numpy(float))
     model_id = model_dir.name
     summary["model_id"] = model_id
     meta = {"caution": CAUTION, "model_id": model_id,
             "build_time": summary.get("model_build_time", "")}
     out = Path(args.output)
     out.mkdir(parents=True, exist_ok=True)
-    cols = _output_columns(table, CONVERT_COLUMNS + COMPARISON_COLUMNS)
+    cols = _output_columns(table, CONVERT_COLUMNS + COMPARISON_COLUMNS
+                           + (["plate"] if "plate" in table else []))
     flat = table.reset_index(drop=True)
     write_indicators(flat, out / "indicators.geojson", columns=cols, meta=meta)
     write_indicators(flat, out / "indicators.csv", columns=cols, meta=meta)

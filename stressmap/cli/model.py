@@ -10,10 +10,12 @@ from stressmap.cli._progress import progress_bar
 from stressmap.errors import InputError, problem
 from stressmap.formats import export
 from stressmap.io.grids import read_document_grids
-from stressmap.io.modeldir import read_model, write_model
+from stressmap.io.modeldir import write_model
+from stressmap.io.networkdir import is_network_dir, read_any_model
 from stressmap.io.plate_files import load_plate_files
 from stressmap.io.points import read_points
 from stressmap.model import build_model, predict_grid, predict_points
+from stressmap.model.network_predict import predict_network_grid, predict_network_points
 
 __all__ = ["register", "parse_weights", "parse_bbox", "load_document"]
 
@@ -95,7 +97,10 @@ def _cmd_build(args) -> int:
 
 def _cmd_predict(args) -> int:
 
-    model = read_model(args.model_dir)
+    network = is_network_dir(args.model_dir)
+    model = read_any_model(args.model_dir)
+    on_points, on_grid = ((predict_network_points, predict_network_grid) if network
+                          else (predict_points, predict_grid))
     weights = parse_weights(args.weights)
     out = Path(args.output)
     fmt = out.suffix.lower().lstrip(".")
@@ -109,7 +114,7 @@ def _cmd_predict(args) -> int:
     }
     if args.points:
         lon, lat, props = read_points(args.points)
-        ds = predict_points(model, lon, lat, weights=weights)
+        ds = on_points(model, lon, lat, weights=weights)
         if fmt in ("geojson", "json"):
             text = json.dumps(export.points_geojson(ds, props, meta), allow_nan=False)
             out.write_text(text, encoding="utf-8")
@@ -118,11 +123,11 @@ def _cmd_predict(args) -> int:
         else:
             out.write_bytes(export.netcdf_bytes(ds, meta))
         n_in = int(ds["inside"].sum())
-        print(f"predicted {n_in} of {lon.size} points inside the plate -> {out}")
+        print(f"predicted {n_in} of {lon.size} points inside the plate{'s' if network else ''} -> {out}")
     else:
         if args.spacing_km is None:
             raise InputError("--bbox needs --spacing-km", [problem("required with --bbox", field="--spacing-km")])
-        ds = predict_grid(model, bbox=parse_bbox(args.bbox), spacing_km=args.spacing_km, weights=weights)
+        ds = on_grid(model, bbox=parse_bbox(args.bbox), spacing_km=args.spacing_km, weights=weights)
         if fmt in ("geojson", "json"):
             out.write_text(json.dumps(export.grid_geojson(ds, meta), allow_nan=False), encoding="utf-8")
         elif fmt == "csv":
@@ -130,7 +135,7 @@ def _cmd_predict(args) -> int:
         else:
             out.write_bytes(export.grid_netcdf_bytes(ds, meta))
         print(f"predicted a {ds.sizes['lat']} x {ds.sizes['lon']} grid "
-              f"({int(ds['inside'].sum())} nodes inside the plate) -> {out}")
+              f"({int(ds['inside'].sum())} nodes inside the plate{'s' if network else ''}) -> {out}")
     print(f"note: {CAUTION}")
     return 0
 
@@ -155,7 +160,8 @@ def register(sub) -> None:
         description="Predict the tectonic stress of a built model at points (--points) or on a "
                     "lon/lat grid (--bbox with --spacing-km). Output type follows the -o suffix.",
     )
-    q.add_argument("model_dir", metavar="DIR", help="model directory written by `stressmap build`")
+    q.add_argument("model_dir", metavar="DIR", help="model directory written by `stressmap build`, "
+                   "or network directory written by `stressmap network build` (adds a plate column)")
     where = q.add_mutually_exclusive_group(required=True)
     where.add_argument("--points", metavar="FILE", help="CSV with lon,lat columns, or GeoJSON/GeoPackage points")
     where.add_argument("--bbox", metavar="W,S,E,N", help="grid bounding box in degrees (write --bbox=W,S,E,N when W is negative)")

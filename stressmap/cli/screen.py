@@ -26,7 +26,7 @@ from stressmap.analyses.sitescreen import (
 from stressmap.cli.model import parse_weights
 from stressmap.errors import InputError, problem
 from stressmap.io.faults import read_fault_file
-from stressmap.io.modeldir import read_model
+from stressmap.io.networkdir import read_any_model
 from stressmap.io.tables import read_csv_table
 from stressmap.plot import screening as plot_screening
 
@@ -231,7 +231,7 @@ def _run(args) -> int:
         req = parse_request(doc)
         model = model_info = None
         if args.model:
-            model = read_model(args.model)
+            model = read_any_model(args.model)
             summary = getattr(model, "summary", {}) or {}
             model_info = {"directory": str(args.model), "name": summary.get("name"),
                           "build_time": summary.get("build_time")}

@@ -14,16 +14,21 @@ from pathlib import Path
 
 from stressmap_api import create_app
 from stressmap_api.demo import ensure_demo, example_points, example_requests
+from stressmap_api.demo_network import demo_network_document, ensure_demo_network, example_network_requests
 from stressmap_api.jobs import get_jobs
+from stressmap_api.network_store import get_network_store
 from stressmap_api.store import get_store
 
 from stressmap import CAUTION, validate
 from stressmap.cli._progress import progress_bar
 from stressmap.errors import InputError, StressmapError, problem
 from stressmap.formats import export
+from stressmap.formats.network_geojson import plates_geojson
 from stressmap.geo.grid import MIN_SPACING_KM
 from stressmap.io.modeldir import write_model
+from stressmap.io.networkdir import build_network, derive, read_network_model
 from stressmap.model import build_model, plate_outline, predict_grid
+from stressmap.model.network_predict import predict_network_grid
 from stressmap.plot.maps import shmax_map
 
 __all__ = ["register", "load_server_config", "SERVER_DEFAULTS"]
@@ -85,13 +90,15 @@ def _cmd_serve(args) -> int:
     with app.app_context():
         store = get_store()
         jobs = get_jobs()
-    demo_id = None
+    demo_id = demo_network = None
     if app.config.get("LOAD_DEMO"):
         bar, update = progress_bar("demo model")
         try:
             demo_id = ensure_demo(store, update, int(app.config.get("MAX_MESH_NODES") or 0))
         finally:
             bar.close()
+        with app.app_context():  # the demo planet's plates build in the background
+            demo_network = ensure_demo_network(get_network_store(), jobs)
     try:
         server = create_server(app, **server_cfg)
     except OSError as exc:
@@ -107,13 +114,19 @@ def _cmd_serve(args) -> int:
     print(f"stressmap service listening on {base}  (API page: {base}/api/v1/docs)", flush=True)
     print(f"data directory: {store.data_dir}; build workers: {jobs.workers} ({jobs.kind})",
           flush=True)
+    token_reads = bool(app.config.get("API_TOKEN")) and bool(app.config.get("READS_NEED_TOKEN"))
     if demo_id:
         model = store.load(demo_id)
         points = example_points(model)
-        token_reads = bool(app.config.get("API_TOKEN")) and bool(app.config.get("READS_NEED_TOKEN"))
         print(f"demo model (fictional plate '{model.summary.get('name')}') ready: {demo_id}")
         print("try:")
         for line in example_requests(base, demo_id, points, token_header=token_reads):
+            print(f"  {line}")
+    if demo_network:
+        network_id, job_id = demo_network
+        print(f"demo network (fictional planet Orrin): {network_id}"
+              + (f", plates building (job {job_id})" if job_id else ", plates built"))
+        for line in example_network_requests(base, network_id, token_header=token_reads):
             print(f"  {line}")
     print("press Ctrl-C to stop", flush=True)
 
@@ -175,14 +188,35 @@ def _cmd_demo(args) -> int:
                     plate_outline(model), title=f"SHmax and regime: {meta['model_name']}",
                     caption=f"Model {model_id} - {meta['model_name']} - built {meta['build_time']}")
     (out / "demo_map.png").write_bytes(png)
+    _demo_network(out, args.spacing_km, meta)
     inside = int(ds["inside"].sum())
     print(f"built the fictional demo plate {meta['model_name']!r} "
           f"({model.summary['mesh'].get('nodes')} mesh nodes) -> {out / 'model'}")
     print(f"predicted {inside} grid nodes inside the plate at {args.spacing_km:g} km spacing:")
-    for name in ("demo_grid.geojson", "demo_grid.nc", "demo_map.png"):
+    for name in ("demo_grid.geojson", "demo_grid.nc", "demo_map.png", "network",
+                 "network_plates.geojson", "network_grid.csv"):
         print(f"  {out / name}")
     print(f"note: {CAUTION}")
     return 0
+
+
+def _demo_network(out: Path, spacing_km: float, meta: dict) -> None:
+    """Build the fictional demo planet (coarse mesh) and write its plates and a global grid."""
+    document = demo_network_document()
+    bar, update = progress_bar("demo network")
+    try:
+        build_network(document, out / "network", progress=update)
+    finally:
+        bar.close()
+    net, docs, keys = derive(document)
+    (out / "network_plates.geojson").write_text(json.dumps(plates_geojson(net, docs, keys)),
+                                                encoding="utf-8")
+    model = read_network_model(out / "network")
+    ds = predict_network_grid(model, (-180.0, -80.0, 179.0, 80.0), max(spacing_km, 300.0))
+    meta = dict(meta, model_name=net.name, model_id=out.name + "/network",
+                build_time=model.summary.get("build_time", ""))
+    (out / "network_grid.csv").write_text(export.grid_csv(ds, meta), encoding="utf-8")
+    print(f"built the fictional demo planet {net.name!r}: {len(docs)} plates -> {out / 'network'}")
 
 
 def register(sub) -> None:
@@ -206,7 +240,7 @@ def register(sub) -> None:
 
     d = sub.add_parser(
         "demo",
-        help="build the fictional demo plate and write a prediction grid (GeoJSON, netCDF, PNG)",
+        help="build the fictional demo plate and demo planet and write prediction grids",
         description="Build the packaged FICTIONAL demo plate and write its model directory, a "
                     "prediction grid as GeoJSON and netCDF, and a PNG map into a folder.")
     d.add_argument("-o", "--output", default="demo-output", metavar="DIR",

@@ -248,6 +248,15 @@ def _rock_options(p, required: bool) -> None:
     g.add_argument("--poisson", type=float, help="Poisson's ratio (default 0.25)")
 
 
+def _window_options(p) -> None:
+    p.add_argument("--max-breakout-width-deg", type=float,
+                   help="breakout width accepted at the lower bound (default 0)")
+    p.add_argument("--upper-bound", choices=["least", "shmin"],
+                   help="least: the lower of breakdown and Shmin (default); shmin: accept "
+                        "tensile wall fractures below Shmin")
+    _rock_options(p, required=True)
+
+
 def _plane_options(p) -> None:
     p.add_argument("--plane", action="append", metavar="STRIKE/DIP",
                    help="a plane, right-hand rule (repeatable)")
@@ -291,21 +300,11 @@ def register(subparsers) -> None:
     p.add_argument("--azimuth-deg", type=float, help="well azimuth, degrees from north")
     p.add_argument("--inclination-deg", type=float, help="0 vertical .. 90 horizontal")
     p.add_argument("--mud-pressure-mpa", type=float, help="report breakouts at this pressure")
-    p.add_argument("--max-breakout-width-deg", type=float,
-                   help="breakout width accepted at the lower bound (default 0)")
-    p.add_argument("--upper-bound", choices=["least", "shmin"],
-                   help="least: the lower of breakdown and Shmin (default); shmin: accept "
-                        "tensile wall fractures below Shmin")
-    _rock_options(p, required=True)
+    _window_options(p)
     p = sub.add_parser("window", help="mud-weight window over all azimuths and inclinations")
     _site_options(p)
     p.add_argument("--step-deg", type=float, help="azimuth and inclination step (default 5)")
-    p.add_argument("--max-breakout-width-deg", type=float,
-                   help="breakout width accepted at the lower bound (default 0)")
-    p.add_argument("--upper-bound", choices=["least", "shmin"],
-                   help="least: the lower of breakdown and Shmin (default); shmin: accept "
-                        "tensile wall fractures below Shmin")
-    _rock_options(p, required=True)
+    _window_options(p)
     p = sub.add_parser("breakout", help="SHmax from an observed breakout width")
     _site_options(p)
     _rock_options(p, required=True)

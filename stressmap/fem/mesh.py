@@ -377,7 +377,9 @@ def _interior_points(poly, bxy, size: _Size, base: float):
     rmax = np.sqrt(max(x0 * x0, x1 * x1) + max(y0 * y0, y1 * y1)) / _R
     scale_max = float(sphere.stereographic_scale(rmax, 0.0))
     hmax = size.edge * scale_max
-    lip = 1.05 * (size.max_slope * scale_max**2 + hmax * rmax / (2.0 * _R)) + 1e-9
+    # plane size H = h * S (h the sphere size, S the scale): dH/dx = S dh/dx + h dS/dx, with
+    # |dh/dx| <= grading / S and dS/dx = r / (2 R); a 1.5 margin covers the polygon distances
+    lip = 1.5 * (size.max_slope + size.edge * rmax / (2.0 * _R)) + 1e-9
     kmin = min(int(np.floor(np.log(hmax * 1.0001 / base) / np.log(_RHO))), 0)
     kmax = max(int(np.ceil(np.log(size.min_km * 0.9999 / base) / np.log(_RHO))) + 1, 1)
     # cells of side ~ f * spacing: the size function changes by at most ~0.35-0.7 spacing
@@ -613,24 +615,53 @@ def mesh_plate(plate, edge_km: float | None = None, smoothing_iterations: int = 
     >>> bool(m.stats["min_angle_away_from_corners_deg"] >= 20.0), abs(m.stats["area_error"]) < 1e-3
     (True, True)
     """
-    import shapely
-
     t0 = time.perf_counter()
     edge = float(edge_km if edge_km is not None else plate.mesh["edge_km"])
     if not np.isfinite(edge) or edge <= 0:
-
         raise InputError(f"edge_km must be a positive number, got {edge_km!r}",
-                         [problem(f"edge_km must be a positive number, got {edge_km!r}", field="edge_km")])
+                         [problem(f"edge_km must be a positive number, got {edge_km!r}",
+                                  field="edge_km")])
     centre = np.asarray(plate.centre_xyz, dtype=float)
     ring_xyz = np.asarray(plate.ring_xyz, dtype=float)
     size = _Size(plate, edge, ring_xyz, centre)
+    bxyz, barc, bfrac, p, tri = _plane_triangulation(ring_xyz, centre, size, edge,
+                                                    smoothing_iterations)
+    nb = len(bxyz)
+    xyz = sphere.stereographic_inverse(p[:, 0] / _R, p[:, 1] / _R, centre)
+    xyz[:nb] = bxyz
+    xyz = sphere.normalize(xyz)
+    area = facet_areas_km2(xyz, tri)
+    flip = area < 0
+    tri[flip] = tri[flip][:, [0, 2, 1]]
+    area = np.abs(area)
+
+    bedges = np.column_stack([np.arange(nb), (np.arange(nb) + 1) % nb]).astype(np.int64)
+    edge_segment = np.asarray(plate.arc_segment, dtype=np.int64)[barc]
+    element_province, element_stiffness = _assign_provinces(plate, xyz, tri, centre)
+    stats = _mesh_stats(plate, xyz, tri, area, ring_xyz, barc, bfrac, edge)
+    stats["seconds"] = time.perf_counter() - t0
+    log.info("meshed %s: %d nodes, %d triangles, min angle %.1f deg in %.2f s", plate.name,
+             stats["nodes"], stats["triangles"], stats["min_angle_deg"], stats["seconds"])
+    lon, lat = sphere.xyz_to_lonlat(xyz)
+    return Mesh(xyz=xyz, lonlat=np.column_stack([lon, lat]), triangles=tri, boundary_edges=bedges,
+                edge_segment=edge_segment, element_province=element_province,
+                element_stiffness=element_stiffness, stats=stats)
+
+
+def _plane_triangulation(ring_xyz, centre, size, edge, smoothing_iterations):
+    """Boundary nodes on the arcs and a quality triangulation in the stereographic plane.
+
+    Returns the boundary nodes (xyz, arc index, fraction along the arc), all plane points
+    (boundary first) and the triangles, unused nodes removed.
+    """
+    # shapely is only needed while meshing
+    import shapely
 
     bxyz, barc, bfrac = _boundary_nodes(ring_xyz, size)
     bxy = np.column_stack(_to_plane(bxyz, centre))
     poly = shapely.Polygon(bxy)
     shapely.prepare(poly)
-    base = edge  # plane spacing at the centre (scale 1)
-    pts = _interior_points(poly, bxy, size, base)
+    pts = _interior_points(poly, bxy, size, edge)   # plane spacing at the centre (scale 1)
 
     # encroachment: split encroached boundary edges, drop encroaching interior points
     for _ in range(12):
@@ -660,27 +691,16 @@ def mesh_plate(plate, edge_km: float | None = None, smoothing_iterations: int = 
         p = np.vstack([bxy, q[nb:][keep]])
         tri = _delaunay_inside(p, poly)
 
-    # drop unused nodes
     used = np.zeros(len(p), dtype=bool)
     used[tri.ravel()] = True
     used[:nb] = True
     new = np.cumsum(used) - 1
-    p = p[used]
-    tri = new[tri]
+    return bxyz, barc, bfrac, p[used], new[tri]
 
-    xyz = sphere.stereographic_inverse(p[:, 0] / _R, p[:, 1] / _R, centre)
-    xyz[:nb] = bxyz
-    xyz = sphere.normalize(xyz)
-    area = facet_areas_km2(xyz, tri)
-    flip = area < 0
-    tri[flip] = tri[flip][:, [0, 2, 1]]
-    area = np.abs(area)
 
-    bedges = np.column_stack([np.arange(nb), (np.arange(nb) + 1) % nb]).astype(np.int64)
-    edge_segment = np.asarray(plate.arc_segment, dtype=np.int64)[barc]
-
-    element_province, element_stiffness = _assign_provinces(plate, xyz, tri, centre)
-
+def _mesh_stats(plate, xyz, tri, area, ring_xyz, barc, bfrac, edge) -> dict:
+    """Quality figures: sizes, angles (also away from sharp corners), area against the plate's."""
+    nb = len(barc)
     angles = triangle_angles_deg(xyz, tri)
     sharp = _sharpness_deg(ring_xyz) < SHARP_CORNER_DEG
     # nodes at sharp ring vertices: the boundary nodes with fraction 0 on an arc starting there
@@ -694,31 +714,24 @@ def mesh_plate(plate, edge_km: float | None = None, smoothing_iterations: int = 
         zone = 2.0 * np.sin(CORNER_ZONE_EDGES * edge / _R / 2.0)
         hit = cKDTree(xyz[sharp_nodes]).query(xyz, distance_upper_bound=zone)[0] < zone
         near_corner |= hit[tri].any(axis=1)
-    exact = abs(float(sphere.spherical_polygon_area(ring_xyz)))
+    exact = float(plate.area_km2)  # the plate's region, also when larger than a hemisphere
     total = float(area.sum())
     el = _edges(tri)
     elen = _R * np.linalg.norm(xyz[el[:, 0]] - xyz[el[:, 1]], axis=1)
-    stats = {
+    return {
         "nodes": int(len(xyz)),
         "triangles": int(len(tri)),
         "boundary_edges": int(nb),
         "min_angle_deg": float(angles.min()),
-        "min_angle_away_from_corners_deg": float(angles[~near_corner].min()) if (~near_corner).any()
-        else float(angles.min()),
+        "min_angle_away_from_corners_deg": float(angles[~near_corner].min())
+        if (~near_corner).any() else float(angles.min()),
         "max_angle_deg": float(angles.max()),
         "area_km2": total,
         "exact_area_km2": exact,
         "area_error": (total - exact) / exact,
         "edge_km": edge,
         "mean_edge_km": float(elen.mean()),
-        "seconds": time.perf_counter() - t0,
     }
-    log.info("meshed %s: %d nodes, %d triangles, min angle %.1f deg in %.2f s", plate.name,
-             stats["nodes"], stats["triangles"], stats["min_angle_deg"], stats["seconds"])
-    lon, lat = sphere.xyz_to_lonlat(xyz)
-    return Mesh(xyz=xyz, lonlat=np.column_stack([lon, lat]), triangles=tri, boundary_edges=bedges,
-                edge_segment=edge_segment, element_province=element_province,
-                element_stiffness=element_stiffness, stats=stats)
 
 
 def _corner_angles_deg(ring_xyz):

@@ -16,13 +16,8 @@ solve, recover, collect), each a function from one :class:`BuildState` to the ne
 summary reports under ``timings`` (the CLI progress bar and benchmarks/solver.py read them).
 Grids (age, elevation, crustal thickness) arrive as arrays in ``grids``: the core opens no files.
 
-Stresses are tectonic (depth-averaged deviatoric membrane force divided by the sheet thickness),
-in MPa, **compression positive**, with components (s_ee, s_nn, s_en) in the local
-(east, north) frame.
-
-Points are located in the mesh by central projection: the flat facets project onto the sphere
-exactly as the plate polygon (boundary arcs are great circles), so a point is inside the plate
-exactly when it falls in a facet; outside points are flagged and get NaN, never extrapolated.
+The unit fields are tectonic stresses in MPa, compression positive, in the local (east, north)
+frame (see :mod:`stressmap.model.predict` for how they are queried).
 """
 
 from __future__ import annotations

@@ -40,6 +40,7 @@ from stressmap.geo import sphere
 from stressmap.model.ring import (
     JOIN_TOLERANCE_KM,
     MAX_EXTENT_DEG,
+    REGIONS,
     Ring,
     close_ring,
     fmt_lonlat,
@@ -69,8 +70,8 @@ MAX_MESH_NODES = 3_000_000
 #: Longest plate, group and province name (characters).
 _MAX_NAME_CHARS = 200
 
-_TOP_FIELDS = ("name", "description", "boundary", "provinces", "ridge_push", "gpe", "drag", "sheet",
-               "mesh")
+_TOP_FIELDS = ("name", "description", "region", "boundary", "provinces", "ridge_push", "gpe", "drag",
+               "sheet", "mesh")
 
 #: Kind-specific parameters: (name, low, high, low_inclusive) for numbers; the low/high bounds
 #: are physical plausibility limits (common practice), not model limits.
@@ -602,12 +603,13 @@ def _refinement_item(item, w: str, probs: _Problems) -> dict | None:
 # the ring, the size limit, the whole document
 
 
-def _check_geometry(seg_coords: list, mesh: dict, provs: list, probs: _Problems):
+def _check_geometry(seg_coords: list, mesh: dict, provs: list, probs: _Problems,
+                    region: str | None = "smaller"):
     """Close the ring; check the mesh size it implies and that provinces lie on the plate.
 
     Returns (Ring or None, kept provinces as (ring (k, 2), props)).
     """
-    ring = close_ring(seg_coords, probs)
+    ring = close_ring(seg_coords, probs, region or "smaller")
     if ring is None:
         return None, []
     est_nodes = _estimate_nodes(ring.area_km2, mesh)
@@ -668,7 +670,8 @@ def parse_plate(document) -> PlateModel:
     seg_coords, features, boundary_ok = _check_boundary(document.get("boundary"), probs,
                                                         ridge_mode)
     provs, provinces_out = _check_provinces(document.get("provinces"), probs)
-    ring, kept_provs = (_check_geometry(seg_coords, mesh, provs, probs) if boundary_ok
+    region = validate.choice(document.get("region", "smaller"), REGIONS, "region", probs)
+    ring, kept_provs = (_check_geometry(seg_coords, mesh, provs, probs, region) if boundary_ok
                         else (None, []))
     validate.raise_problems(
         probs, f"invalid plate model document: {len(probs)} problem{'s' if len(probs) > 1 else ''}",
@@ -676,6 +679,8 @@ def parse_plate(document) -> PlateModel:
     norm = {"name": name}
     if description is not None:
         norm["description"] = description
+    if region == "left":
+        norm["region"] = region
     norm["boundary"] = {"type": "FeatureCollection", "features": features}
     if provinces_out is not None:
         norm["provinces"] = provinces_out

@@ -17,6 +17,7 @@ import numpy as np
 
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
+from stressmap.geo.sphere import local_frame
 from stressmap.geo.grid import regular_grid, wrap_lon
 from stressmap.geo.tensor import describe
 from stressmap.model.built import MAX_GRID_POINTS, BuiltModel
@@ -77,8 +78,20 @@ def locate(model: BuiltModel, lon, lat):
     inside : (P,) bool
     triangle : (P,) int64, -1 outside
     weights : (P, 3) float64, barycentric weights of the facet's vertices (NaN outside)
+
+    The answer to the latest query is kept on the model (a network prediction locates the same
+    points twice: for the values and for the plate column); callers must not modify it.
     """
     lon, lat = _check_lonlat(lon, lat)
+    last = model._cache.get("last_locate")
+    if last is not None and np.array_equal(last[0], lon) and np.array_equal(last[1], lat):
+        return last[2]
+    answer = _locate(model, lon, lat)
+    model._cache["last_locate"] = (lon.copy(), lat.copy(), answer)
+    return answer
+
+
+def _locate(model: BuiltModel, lon, lat):
     xyz, tri, inv, tree, reach, _ = _geometry(model)
     lo, la = np.radians(lon), np.radians(lat)
     q = np.stack([np.cos(la) * np.cos(lo), np.cos(la) * np.sin(lo), np.sin(la)], axis=1)
@@ -125,14 +138,38 @@ def unit_stress_at(model: BuiltModel, lon, lat):
     unit : (G, P, 3) float64
         (s_ee, s_nn, s_en) in MPa, compression positive, per group at weight 1; NaN outside.
     """
+    lon, lat = _check_lonlat(lon, lat)
     inside, triangle, w = locate(model, lon, lat)
-    _, tri, _, _, _, unit_nodes = _geometry(model)
+    xyz, tri, _, _, _, unit_nodes = _geometry(model)
     g = unit_nodes.shape[0]
     out = np.full((g, inside.size, 3), np.nan)
     if inside.any():
         nodes = tri[triangle[inside]]  # (Pin, 3)
-        out[:, inside] = np.einsum("pj,gpjc->gpc", w[inside], unit_nodes[:, nodes])
+        lo, la = np.radians(lon[inside]), np.radians(lat[inside])
+        q = np.stack([np.cos(la) * np.cos(lo), np.cos(la) * np.sin(lo), np.sin(la)], axis=1)
+        at_q = _to_point_frames(unit_nodes[:, nodes], xyz[nodes], q)
+        out[:, inside] = np.einsum("pj,gpjc->gpc", w[inside], at_q)
     return inside, out
+
+
+def _to_point_frames(s, node_xyz, q):
+    """Node tensors (G, P, 3 nodes, 3 components) in their nodal (east, north) frames, expressed
+    in the (east, north) frame at the points q (P, 3).
+
+    Frames of nearby nodes differ by the convergence of the meridians (up to 180 degrees next
+    to a pole), so the components are turned by the angle between the node's east and the
+    point's east (the node's east projected on the point's tangent plane) before weighting.
+    """
+    qe, qn = local_frame(q)
+    ne, _ = local_frame(node_xyz)  # (P, 3, 3)
+    x = np.einsum("pjk,pk->pj", ne, qe)
+    y = np.einsum("pjk,pk->pj", ne, qn)
+    theta = np.arctan2(y, x)
+    c, sn = np.cos(theta), np.sin(theta)
+    see, snn, sen = s[..., 0], s[..., 1], s[..., 2]
+    return np.stack([c * c * see + sn * sn * snn - 2.0 * c * sn * sen,
+                     sn * sn * see + c * c * snn + 2.0 * c * sn * sen,
+                     c * sn * (see - snn) + (c * c - sn * sn) * sen], axis=-1)
 
 
 def resolve_weights(model: BuiltModel, weights=None) -> np.ndarray:
@@ -267,14 +304,25 @@ def predict_grid(model: BuiltModel, bbox, spacing_km, weights=None):
 
 def plate_outline(model: BuiltModel) -> list[dict]:
     """Boundary segments for maps: a list of ``{"kind", "group", "name", "lon", "lat"}`` with
-    lon/lat arrays of the ring vertices of each segment, in ring order."""
+    lon/lat arrays of the ring vertices of each segment, in ring order (each plate's ring on its
+    own for the joined plates of a network)."""
     f = model.fields
     lon = np.asarray(f["ring_lon"].values, float)
     lat = np.asarray(f["ring_lat"].values, float)
     arc = np.asarray(f["arc_segment"].values, dtype=np.int64)
-    kinds = [str(k) for k in f["segment_kind"].values]
-    groups = [str(g) for g in f["segment_group"].values]
-    names = [str(g) for g in f["segment_name"].values]
+    tables = ([str(k) for k in f["segment_kind"].values], [str(g) for g in f["segment_group"].values],
+              [str(g) for g in f["segment_name"].values])
+    if "ring_plate" not in f:
+        return _ring_runs(lon, lat, arc, *tables)
+    which = np.asarray(f["ring_plate"].values)
+    out = []
+    for k in np.unique(which):  # the plates of a network: a dozen or so
+        sel = which == k
+        out += _ring_runs(lon[sel], lat[sel], arc[sel], *tables)
+    return out
+
+
+def _ring_runs(lon, lat, arc, kinds, groups, names) -> list[dict]:
     n = arc.size
     # runs of consecutive arcs of one segment (the ring starts at a segment boundary or inside one)
     change = np.flatnonzero(arc != np.roll(arc, 1))

@@ -5,7 +5,10 @@ Rules (README "Plate model document"):
 * boundary arcs between consecutive vertices are great circles;
 * segment ends join within :data:`JOIN_TOLERANCE_KM` into one closed ring, in any order and
   either direction;
-* on a sphere a ring bounds two regions: the plate is the *smaller* one; the ring is stored
+* on a sphere a ring bounds two regions: the plate is the *smaller* one, unless the document's
+  ``region`` is ``"left"``: then it is the region on the left walking boundary feature 0 from
+  its first to its last position (how plates larger than a hemisphere are given; plates derived
+  from a network always say so); the ring is stored
   counter-clockwise seen from outside the sphere (plate interior on the left);
 * the plate must lie within :data:`MAX_EXTENT_DEG` degrees of arc of its centre (area
   centroid), which keeps every projection used by the mesher and the checks well conditioned.
@@ -26,10 +29,11 @@ from scipy.spatial import cKDTree
 
 from stressmap.constants import EARTH_RADIUS_KM
 from stressmap.errors import problem
-from stressmap.geo import sphere
+from stressmap.geo import arcs, sphere
 
 __all__ = [
     "MAX_EXTENT_DEG",
+    "REGIONS",
     "JOIN_TOLERANCE_KM",
     "Ring",
     "fmt_lonlat",
@@ -40,7 +44,9 @@ __all__ = [
 ]
 
 #: Every point of the ring must lie within this angle (degrees of arc) of the plate centre.
-MAX_EXTENT_DEG = 80.0
+MAX_EXTENT_DEG = 165.0
+#: Which of the two regions a ring bounds is the plate (the document's ``region``).
+REGIONS = ("smaller", "left")
 #: Segment ends closer than this join into the ring.
 JOIN_TOLERANCE_KM = 1.0
 #: Rings spreading beyond this angle about their vertex mean are not tested for crossings (the
@@ -215,8 +221,30 @@ def self_intersections(ring_xyz, arc_segment, centre, probs: list) -> None:
                   f"boundary.features[{key[0]}].geometry.coordinates")
 
 
-def close_ring(seg_coords: list, probs: list) -> Ring | None:
+def self_crossings_sphere(ring_xyz, arc_segment, probs: list) -> None:
+    """Crossing arcs of a ring too wide for a gnomonic plane, found on the sphere."""
+    a, b = ring_xyz, np.roll(ring_xyz, -1, axis=0)
+    n = len(a)
+    pairs = arcs.near_pairs(a, b, 0.0)
+    i, j = pairs[:, 0], pairs[:, 1]
+    keep = ~((j == i + 1) | ((i == 0) & (j == n - 1)))
+    meet, point = arcs.arc_crossings(a[i[keep]], b[i[keep]], a[j[keep]], b[j[keep]])
+    seen = set()
+    for ia, ib, p in zip(i[keep][meet].tolist(), j[keep][meet].tolist(), point[meet]):
+        key = tuple(sorted((int(arc_segment[ia]), int(arc_segment[ib]))))
+        if key in seen:
+            continue
+        seen.add(key)
+        lon, lat = sphere.xyz_to_lonlat(p)
+        _add(probs, f"self-intersecting ring: segment {key[0]} crosses segment {key[1]} near "
+             f"{fmt_lonlat(float(lon), float(lat))}", f"boundary.features[{key[0]}].geometry.coordinates")
+
+
+def close_ring(seg_coords: list, probs: list, region: str = "smaller") -> Ring | None:
     """Join checked segments into the plate's ring, oriented, measured and size-checked.
+
+    ``region`` "left" takes the region on the left of the ring as given (segment 0 forward),
+    whatever its size, instead of the smaller one.
 
     Problems (gaps, branches, several rings, crossings, no area, a plate too large) go to
     ``probs``; None is returned when any was found.
@@ -231,13 +259,17 @@ def close_ring(seg_coords: list, probs: list) -> Ring | None:
     mean = sphere.normalize(ring_xyz.sum(axis=0))
     spread = (np.degrees(np.max(sphere.angle_between(ring_xyz, mean)))
               if np.any(mean) else 180.0)
+    n0 = len(probs)
     if spread < _CROSSING_TEST_LIMIT_DEG:
-        n0 = len(probs)
         self_intersections(ring_xyz, arc_segment, mean, probs)
-        if len(probs) > n0:
-            return None
+    else:
+        self_crossings_sphere(ring_xyz, arc_segment, probs)
+    if len(probs) > n0:
+        return None
     area = sphere.spherical_polygon_area(ring_xyz)
-    if area < 0:
+    if region == "left" and area < 0:  # the larger region, on the left as given
+        area = 4.0 * np.pi * EARTH_RADIUS_KM**2 + area
+    elif area < 0:
         order = [(s, not f) for s, f in reversed(order)]
         ring, arc_segment, bounds = build_ring(order, seg_coords)
         ring_xyz = sphere.lonlat_to_xyz(ring[:, 0], ring[:, 1])
@@ -247,12 +279,10 @@ def close_ring(seg_coords: list, probs: list) -> Ring | None:
     if len(ring) < 3 or area_km2 < 1.0:
         _add(probs, f"the boundary ring encloses no area ({area_km2:.3g} km^2)", "boundary")
         return None
-    if extent > MAX_EXTENT_DEG or spread >= _CROSSING_TEST_LIMIT_DEG:
-        extent = max(extent, spread)
+    if extent > MAX_EXTENT_DEG:
         _add(probs, f"the plate is larger than supported: its ring reaches {extent:.1f} degrees "
-             f"of arc from the plate centre; the limit is {MAX_EXTENT_DEG:g} degrees (the plate "
-             "must fit in a cap of that radius, well inside a hemisphere); split the plate",
-             "boundary")
+             f"of arc from the plate centre; the limit is {MAX_EXTENT_DEG:g} degrees; split the "
+             "plate", "boundary")
         return None
     return Ring(lonlat=ring, xyz=ring_xyz, arc_segment=arc_segment, bounds=bounds,
                 centre_xyz=centre, area_km2=float(area_km2))

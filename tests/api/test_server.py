@@ -198,8 +198,15 @@ def test_demo_service_prints_two_requests_that_work_as_printed(data_dir):
     try:
         while not any("press Ctrl-C" in line for line in server.seen):
             server.seen.append(server.lines.get(timeout=60))
-        commands = [line.strip() for line in server.seen if line.strip().startswith("curl ")]
+        curls = [line.strip() for line in server.seen if line.strip().startswith("curl ")]
+        commands = [c for c in curls if "/models/" in c]
         assert len(commands) == 2, server.seen
+        # the fictional demo planet's two requests (its plates build in the background)
+        network = [c for c in curls if "/networks/" in c]
+        assert len(network) == 2, server.seen
+        plates = json.loads(subprocess.run(["sh", "-c", network[0]], capture_output=True,
+                                           text=True, timeout=60, check=True).stdout)
+        assert len(plates["features"]) == 10 and "fictional" in plates["network_name"]
         outputs = [subprocess.run(["sh", "-c", c], capture_output=True, text=True, timeout=60,
                                   check=True).stdout for c in commands]
         model = json.loads(outputs[0])

@@ -319,10 +319,24 @@ def test_ring_doubling_back_is_self_intersecting():
 
 
 def test_plate_larger_than_supported():
-    # a ring along the equator bounds a hemisphere: 90 degrees from its centre (the pole)
-    probs = problems_of(ring_doc([(-120, 0), (0, 0), (120, 0)]))
+    # region "left" of a clockwise ring around a 10-degree cap: the plate is everything else,
+    # reaching 170 degrees from its centre (the cap's antipode)
+    cap = [((-lon + 180) % 360 - 180, 80.0) for lon in range(0, 360, 30)]
+    probs = problems_of(ring_doc(cap, region="left"))
     msg = " ".join(p["message"] for p in probs)
     assert "larger than supported" in msg and f"limit is {MAX_EXTENT_DEG:g} degrees" in msg
+
+
+def test_region_left_gives_the_larger_region_and_the_hemisphere_is_allowed():
+    # a ring along the equator bounds a hemisphere: 2 pi R^2 (exact), on the left: the north
+    half = parse_plate(ring_doc([(-120, 0), (0, 0), (120, 0)]))
+    assert_allclose(half.area_km2, 2 * np.pi * 6371.0**2, rtol=1e-12)
+    cap = [((-lon + 180) % 360 - 180, 40.0) for lon in range(0, 360, 30)]  # clockwise
+    small = parse_plate(ring_doc(cap))
+    big = parse_plate(ring_doc(cap, region="left"))
+    assert_allclose(small.area_km2 + big.area_km2, 4 * np.pi * 6371.0**2, rtol=1e-12)
+    assert big.document["region"] == "left" and big.area_km2 > small.area_km2
+    assert problems_of(ring_doc(cap, region="biggest"))[0]["field"] == "region"
 
 
 def test_every_problem_is_collected(demo):
