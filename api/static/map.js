@@ -165,11 +165,17 @@
     const pad = 0.02;
     const labelLat = b.getSouth() + pad * (b.getNorth() - b.getSouth());
     const labelLon = b.getWest() + pad * (b.getEast() - b.getWest());
+    const margin = 0.04;  // no label cut by the edge of the view
+    const dLon = margin * (b.getEast() - b.getWest()), dLat = margin * (b.getNorth() - b.getSouth());
     for (let lon = w; lon <= e; lon += step) {
-      if (lon > b.getWest() && lon < b.getEast()) addGraticuleLabel([labelLat, lon], lonText(lon), 'center');
+      if (lon > b.getWest() + dLon && lon < b.getEast() - dLon) {
+        addGraticuleLabel([labelLat, lon], lonText(lon), 'center');
+      }
     }
     for (let lat = s; lat <= n; lat += step) {
-      if (lat > b.getSouth() && lat < b.getNorth()) addGraticuleLabel([lat, labelLon], latText(lat), 'left');
+      if (lat > b.getSouth() + 2 * dLat && lat < b.getNorth() - dLat) {
+        addGraticuleLabel([lat, labelLon], latText(lat), 'left');
+      }
     }
   }
 
