@@ -326,6 +326,13 @@ def test_panel_fits_its_width_and_graticule_is_labelled(page):
     # meridians and parallels carry their degrees (the demo plate spans about 40 W-10 E, 5-38 S)
     labels = page.evaluate("() => [...document.querySelectorAll('.grat-label')].map(e => e.textContent)")
     assert "20\u00b0W" in labels and "20\u00b0S" in labels, labels
+    # the legend folds away (a small screen needs the plate more than the legend) and back
+    full = page.locator("#legend").bounding_box()
+    page.locator("#legend summary").click()
+    folded = page.locator("#legend").bounding_box()
+    assert folded["height"] < 0.25 * full["height"] and folded["width"] < 0.5 * full["width"]
+    page.locator("#legend summary").press("Enter")  # keyboard too
+    assert page.locator("#legend").bounding_box()["height"] == pytest.approx(full["height"], abs=2)
 
 
 # ----------------------------------------------------------------------------- without a browser
