@@ -46,7 +46,7 @@ def synthetic_csv(n, rng):
 def main():
     from stressmap.geo import focal
     from stressmap.analyses.compare import compare
-    from stressmap.analyses.indicators import indicators_from_csv_text
+    from stressmap.formats.indicators import indicators_from_csv_text
     from stressmap.model import build_model
     from stressmap.analyses.observed import observed_grid
 

@@ -12,7 +12,8 @@ import numpy as np
 
 from stressmap.analyses import faults as fl
 from stressmap.analyses import screening as sc
-from stressmap.analyses.sitescreen import parse_request, screen
+from stressmap.analyses.sitescreen import screen
+from stressmap.formats.screening import parse_request_json as parse_request
 
 
 def _best(fn, repeat=3):

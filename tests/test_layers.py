@@ -114,21 +114,6 @@ def _reads_package_data(fn) -> bool:
     return False
 
 
-#: Breaches found when the layout was introduced, each owned by a piece of open work. This list
-#: only shrinks; the test fails on any breach not listed here and on any listed one that is gone.
-PENDING = {
-    "stressmap.analyses.ensemble: core layer 'analyses' imports edge module stressmap.plot.maps (plot)",
-    "stressmap.analyses.indicators: core layer 'analyses' imports edge module stressmap.io.indicators (io)",
-    "stressmap.analyses.observed: core layer 'analyses' imports edge module stressmap.formats.export (formats)",
-    "stressmap.analyses.sitescreen: core layer 'analyses' imports edge module stressmap.io.faults (io)",
-}
-
-
-def _without_line(problem: str) -> str:
-    head, rest = problem.split(" ", 1)
-    return head.rsplit(":", 1)[0] + ": " + rest
-
-
 def project_modules():
     for folder in ("stressmap", "api"):
         for path in sorted((ROOT / folder).rglob("*.py")):
@@ -139,10 +124,7 @@ def test_every_module_keeps_the_layer_rule():
     problems = []
     for module, path in project_modules():
         problems += violations(module, path.read_text(encoding="utf-8"))
-    new = [p for p in problems if _without_line(p) not in PENDING]
-    assert not new, "layer rule broken:\n" + "\n".join(new)
-    gone = PENDING - {_without_line(p) for p in problems}
-    assert not gone, "fixed breaches still listed in PENDING (remove them):\n" + "\n".join(sorted(gone))
+    assert not problems, "layer rule broken:\n" + "\n".join(problems)
 
 
 def test_every_stressmap_subpackage_has_a_layer():

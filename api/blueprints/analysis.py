@@ -31,19 +31,19 @@ from stressmap.analyses.calibrate import calibrate
 from stressmap.analyses.ensemble import (
     DEFAULT_PERCENTILES,
     ensemble_grid,
-    ensemble_png,
     ensemble_points,
     flatten_percentiles,
     validate_distributions,
 )
-from stressmap.analyses.indicators import (
-    indicators_from_csv_text,
-    indicators_from_geojson,
-)
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
 from stressmap.formats import export
+from stressmap.formats.indicators import (
+    indicators_from_csv_text,
+    indicators_from_geojson,
+)
 from stressmap.model import plate_outline
+from stressmap.plot.ensemble import ensemble_png
 from stressmap.plot.maps import ensemble_regime_png
 
 __all__ = ["bp", "run_calibration", "run_ensemble_job", "ENSEMBLE_FILE"]

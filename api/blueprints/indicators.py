@@ -6,7 +6,7 @@ misfit and regime agreement, and the summary. Answers as JSON (default), GeoJSON
 (``picture``: map or rose).
 
 ``POST /indicators/smooth`` -- the observed SHmax field on a grid (``bbox``, ``radius_km``,
-optional ``spacing_km``, ``min_count``, ``max_dispersion_deg``) as GeoJSON (default) or CF
+optional ``spacing_km``, ``min_count``, ``max_halfwidth_deg``) as GeoJSON (default) or CF
 netCDF.
 
 Views are thin: validate, call the core (:mod:`stressmap.analyses.indicators`, :mod:`stressmap.analyses.compare`,
@@ -26,19 +26,21 @@ from stressmap_api.limits import run_limited
 from stressmap_api.store import check_id, get_store
 
 from stressmap.analyses.compare import COMPARISON_COLUMNS, compare
-from stressmap.analyses.indicators import (
-    CONVERT_COLUMNS,
-    indicators_from_csv_text,
-    indicators_from_geojson,
-)
+from stressmap.analyses.indicators import CONVERT_COLUMNS
 from stressmap.analyses.observed import (
-    observed_geojson,
+    DEFAULT_MAX_HALFWIDTH_DEG,
+    DEFAULT_MIN_COUNT,
     observed_grid,
-    observed_netcdf_bytes,
 )
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
-from stressmap.io.indicators import indicators_csv, indicators_geojson
+from stressmap.formats.indicators import (
+    indicators_csv,
+    indicators_from_csv_text,
+    indicators_from_geojson,
+    indicators_geojson,
+)
+from stressmap.formats.observed import observed_geojson, observed_netcdf_bytes
 from stressmap.plot.indicators import comparison_map_png, rose_png
 
 __all__ = ["bp", "COMPARE_FORMATS", "SMOOTH_FORMATS"]
@@ -50,7 +52,7 @@ SMOOTH_FORMATS = ("geojson", "netcdf")
 PICTURES = ("map", "rose")
 _COMPARE_MEMBERS = {"indicators", "indicators_csv", "weights", "skip_bad", "format", "picture"}
 _SMOOTH_MEMBERS = {"indicators", "indicators_csv", "skip_bad", "bbox", "radius_km", "spacing_km",
-                   "min_count", "max_dispersion_deg", "format"}
+                   "min_count", "max_halfwidth_deg", "format"}
 
 
 def _object_body(allowed: set) -> dict:
@@ -173,10 +175,10 @@ def compare_model(model_id: str):
     return jsonify(result)
 
 
-def _run_smooth(gdf, bbox, radius_km, spacing_km, min_count, max_dispersion_deg, max_nodes, fmt):
+def _run_smooth(gdf, bbox, radius_km, spacing_km, min_count, max_halfwidth_deg, max_nodes, fmt):
 
     ds = observed_grid(gdf, bbox=bbox, radius_km=radius_km, spacing_km=spacing_km, min_count=min_count,
-                       max_dispersion_deg=max_dispersion_deg, max_nodes=max_nodes)
+                       max_halfwidth_deg=max_halfwidth_deg, max_nodes=max_nodes)
     return observed_netcdf_bytes(ds) if fmt == "netcdf" else observed_geojson(ds)
 
 
@@ -193,11 +195,12 @@ def smooth():
         raise InputError("radius_km is required", [problem("missing", field="radius_km")])
     radius = _number(body.get("radius_km"), "radius_km")
     spacing = None if body.get("spacing_km") is None else _number(body["spacing_km"], "spacing_km")
-    min_count = _number(body.get("min_count"), "min_count", default=3, integer=True)
-    max_disp = _number(body.get("max_dispersion_deg"), "max_dispersion_deg", default=25.0)
+    min_count = _number(body.get("min_count"), "min_count", default=DEFAULT_MIN_COUNT, integer=True)
+    max_half = _number(body.get("max_halfwidth_deg"), "max_halfwidth_deg",
+                       default=DEFAULT_MAX_HALFWIDTH_DEG)
     gdf = _indicators(body)
     max_nodes = int(current_app.config.get("MAX_GRID_POINTS") or 0) or 1_000_000
-    result = run_limited(_run_smooth, gdf, bbox, radius, spacing, min_count, max_disp, max_nodes, fmt)
+    result = run_limited(_run_smooth, gdf, bbox, radius, spacing, min_count, max_half, max_nodes, fmt)
     if fmt == "netcdf":
         return Response(result, mimetype="application/x-netcdf",
                         headers={"Content-Disposition": 'attachment; filename="observed-shmax.nc"'})

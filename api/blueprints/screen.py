@@ -1,6 +1,6 @@
 """Site and fault screening: ``POST /screen`` (stress at depth, fault reactivation tendencies).
 
-Thin view: validate (:func:`stressmap.analyses.sitescreen.parse_request`), load the model by id from the
+Thin view: validate (:func:`stressmap.formats.screening.parse_request_json`), load the model by id from the
 store when one is named, run the screening within the request time limit, serialise as JSON,
 GeoJSON (planes and trace segments), CSV or PNG (Mohr diagram, stress polygon or fault map).
 Every answer carries the caution.
@@ -15,10 +15,12 @@ from stressmap_api import queries
 from stressmap_api.limits import run_limited
 from stressmap_api.store import check_id, get_store
 
-from stressmap.analyses import sitescreen
-from stressmap.analyses.sitescreen import parse_request
+from stressmap.analyses.sitescreen import screen as run_screening
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
+from stressmap.formats.screening import parse_request_json as parse_request
+from stressmap.formats.screening import result_csv, result_geojson, result_json
+from stressmap.plot import margins as plot_margins
 from stressmap.plot import screening as plot_screening
 
 __all__ = ["bp", "FORMATS", "PICTURES", "MAX_PLANE_SAMPLES"]
@@ -26,7 +28,8 @@ __all__ = ["bp", "FORMATS", "PICTURES", "MAX_PLANE_SAMPLES"]
 bp = Blueprint("screen", __name__)
 
 FORMATS = ("json", "geojson", "csv", "png")
-PICTURES = {"mohr": "mohr_png", "polygon": "polygon_png", "map": "fault_map_png"}
+PICTURES = {"mohr": "mohr_png", "polygon": "polygon_png", "map": "fault_map_png",
+            "margins": "margin_curves_png"}
 #: Upper bound of planes x samples evaluated in one request (memory and time).
 MAX_PLANE_SAMPLES = 5_000_000
 
@@ -43,15 +46,16 @@ def _choice(value, options, field):
 
 def _run(req, model, model_info, fmt, picture):
 
-    result = sitescreen.screen(req, model, model_info)
+    result = run_screening(req, model, model_info)
     if fmt == "json":
-        return "json", sitescreen.result_json(result)
+        return "json", result_json(result)
     if fmt == "geojson":
-        return "geojson", sitescreen.result_geojson(result)
+        return "geojson", result_geojson(result)
     if fmt == "csv":
-        return "csv", sitescreen.result_csv(result)
+        return "csv", result_csv(result)
 
-    return "png", getattr(plot_screening, PICTURES[picture])(result)
+    pictures = plot_margins if picture == "margins" else plot_screening
+    return "png", getattr(pictures, PICTURES[picture])(result)
 
 
 @bp.post("/screen")

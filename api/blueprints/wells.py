@@ -18,6 +18,7 @@ from stressmap_api.store import check_id, get_store
 from stressmap.analyses import wells
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
+from stressmap.formats.screening import decode_geojson_parts
 from stressmap.formats.wells import csv_table, json_document
 from stressmap.plot import wells as plot_wells
 
@@ -77,7 +78,15 @@ def run(analysis: str):
     body = dict(body)
     fmt = _format(body, analysis)
     model, info = _model(body)
-    req = wells.parse_well_request(body)
+    body, problems = decode_geojson_parts(body)
+    try:
+        req = wells.parse_well_request(body)
+    except InputError as exc:
+        raise InputError(exc.args[0] if not problems else
+                         f"{len(problems) + len(exc.problems)} problems with the request",
+                         problems + exc.problems) from None
+    if problems:
+        raise InputError(f"{len(problems)} problem(s) with the request's GeoJSON", problems)
     if analysis == "profile" and req.site.samples > 0:
         if req.site.samples > 20000:
             raise InputError("too many samples for a profile (at most 20000)",

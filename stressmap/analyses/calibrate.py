@@ -583,6 +583,50 @@ def calibrate_arrays(unit, observed_deg, kappa=None, *, groups=None, default_wei
     against it (:func:`stressmap.geo.circular.random_misfit_significance`; it ignores the freedom of the
     fit, which the Monte Carlo ``p_value`` accounts for).
     """
+    d, e, obs, kappa, groups, w0, b, ref = _prepared_inputs(
+        unit, observed_deg, kappa, groups, default_weights, bounds, reference, confidence)
+    g, n = d.shape
+    report = progress or (lambda fraction, message: None)
+    rng = np.random.default_rng(seed)
+    prob = _problem(d, e, obs, b, ref, w0[ref])
+    b = b.copy()
+    b[ref] = [w0[ref], w0[ref]]
+
+    f_before, _ = misfit_objective(w0, d, e, prob.cos2o, prob.sin2o, kappa)
+    m_before, _ = misfit_deg(w0, d, e, obs, kappa)
+    x_best, f_best = _best_fit(prob, kappa, w0, n_starts, rng, f_before)
+    w_best = prob.full(x_best)
+    m_after, residuals = misfit_deg(w_best, d, e, obs, kappa)
+    report(0.1, "best fit found")
+    boot = _bootstrap(prob, kappa, x_best, w_best, n_bootstrap, rng)
+    report(0.6, "bootstrap done")
+    alpha = 1.0 - confidence
+    if n_bootstrap:
+        ci = np.quantile(boot, [alpha / 2, 1 - alpha / 2], axis=0).T
+    else:
+        ci = np.full((g, 2), np.nan)
+    ci[ref] = w0[ref]
+    significance = _significance(prob, kappa, w0, residuals, m_before, m_after, n_random, seed,
+                                 rng, report)
+    constrained, flags = _constraint_flags(prob, kappa, groups, b, ci, w_best, f_best,
+                                           residuals, n_bootstrap)
+    report(1.0, "calibration done")
+    return CalibrationResult(
+        groups=groups, weights=w_best, default_weights=w0, weights_ci=ci, bounds=b,
+        reference=groups[ref], confidence=float(confidence), misfit_before_deg=m_before,
+        misfit_after_deg=m_after, objective_before=f_before, objective_after=f_best,
+        significance=significance, constrained=constrained, flags=flags,
+        residuals_deg=residuals, predicted_deg=_predicted_deg(w_best, d, e),
+        bootstrap_weights=boot, n_indicators=n,
+        settings={"n_starts": n_starts, "n_bootstrap": n_bootstrap, "n_random": n_random,
+                  "seed": seed},
+    )
+
+
+def _prepared_inputs(unit, observed_deg, kappa, groups, default_weights, bounds, reference,
+                     confidence):
+    """Checked inputs of :func:`calibrate_arrays`: axial terms, observations, misfit weights,
+    group names, default weights, bounds (G, 2) and the reference group's index."""
     unit = np.asarray(unit, dtype=float)
     d, e = axial_terms(unit)
     g, n = d.shape
@@ -598,109 +642,113 @@ def calibrate_arrays(unit, observed_deg, kappa=None, *, groups=None, default_wei
     w0 = np.ones(g) if default_weights is None else np.asarray(default_weights, dtype=float)
     b = np.asarray(bounds, dtype=float) if isinstance(bounds, np.ndarray) else \
         resolve_bounds(groups, bounds)
-    if reference is None:
-        rms = np.sqrt(np.mean(d * d + e * e, axis=1))
-        ref = int(np.argmax(rms))
-    elif reference in groups:
-        ref = groups.index(reference)
-    else:
-        raise InputError("unknown reference group",
-                         [problem(f"'{reference}' is not one of {', '.join(groups)}",
-                                  field="reference")])
+    ref = _reference_index(d, e, groups, reference)
     n_free = g - 1
     if kappa.sum() <= 0 or np.count_nonzero(kappa) < max(n_free, 1):
         raise InputError("too few usable indicators for calibration",
                          [problem(f"{np.count_nonzero(kappa)} indicators with positive weight; "
                                   f"{n_free} free weights need at least as many", field="indicators")])
-    report = progress or (lambda fraction, message: None)
-    rng = np.random.default_rng(seed)
-    prob = _problem(d, e, obs, b, ref, w0[ref])
-    ref_b = np.array([w0[ref], w0[ref]])
-    b = b.copy()
-    b[ref] = ref_b
+    return d, e, obs, kappa, groups, w0, b, ref
 
-    f_before, _ = misfit_objective(w0, d, e, prob.cos2o, prob.sin2o, kappa)
-    m_before, _ = misfit_deg(w0, d, e, obs, kappa)
-    if n_free == 0:
-        x_best, f_best = np.zeros(0), f_before
-    else:
-        starts = _starts(prob, w0, n_starts, rng)
-        xs, fs = _batched_fit(prob, kappa[None], starts)
-        # polish the best start with L-BFGS-B (an independent method; keeps the better answer)
-        x_best, f_best = _minimise(prob, kappa, xs[np.argmin(fs)][None])
-        if fs.min() < f_best:
-            x_best, f_best = xs[np.argmin(fs)], float(fs.min())
-    w_best = prob.full(x_best)
-    m_after, residuals = misfit_deg(w_best, d, e, obs, kappa)
-    report(0.1, "best fit found")
 
-    # Bootstrap over indicators: multiplicities from a multinomial draw; every resample starts
-    # from the best fit and from one random point, all resamples solved as one batch.
+def _reference_index(d, e, groups, reference) -> int:
+    """Index of the reference group: the named one, else the strongest RMS unit stress."""
+    if reference is None:
+        return int(np.argmax(np.sqrt(np.mean(d * d + e * e, axis=1))))
+    if reference in groups:
+        return groups.index(reference)
+    raise InputError("unknown reference group",
+                     [problem(f"'{reference}' is not one of {', '.join(groups)}",
+                              field="reference")])
+
+
+def _best_fit(prob, kappa, w0, n_starts, rng, f_before):
+    """Free weights and objective of the best fit from ``n_starts`` seeded starts."""
+    if prob.free.size == 0:
+        return np.zeros(0), f_before
+    starts = _starts(prob, w0, n_starts, rng)
+    xs, fs = _batched_fit(prob, kappa[None], starts)
+    # polish the best start with L-BFGS-B (an independent method; keeps the better answer)
+    x_best, f_best = _minimise(prob, kappa, xs[np.argmin(fs)][None])
+    if fs.min() < f_best:
+        x_best, f_best = xs[np.argmin(fs)], float(fs.min())
+    return x_best, f_best
+
+
+def _bootstrap(prob, kappa, x_best, w_best, n_bootstrap, rng) -> np.ndarray:
+    """Bootstrap weights over indicators, (n_bootstrap, G).
+
+    Multiplicities come from a multinomial draw; every resample starts from the best fit and from
+    one random point, all resamples solved as one batch.
+    """
+    n = kappa.size
     boot = np.tile(w_best, (n_bootstrap, 1))
-    if n_free and n_bootstrap:
-        counts = rng.multinomial(n, np.full(n, 1.0 / n), size=n_bootstrap)
-        extra = _random_starts(rng, prob.bounds, n_bootstrap)
-        k_b = kappa[None] * counts
-        usable = k_b.sum(axis=1) > 0
-        k_b[~usable] = kappa
-        x0 = np.vstack([np.tile(x_best, (n_bootstrap, 1)), extra])
-        xs, fs = _batched_fit(prob, np.vstack([k_b, k_b]), x0)
-        pick = np.where(fs[:n_bootstrap] <= fs[n_bootstrap:], 0, n_bootstrap) + np.arange(n_bootstrap)
-        xb = _polish(prob, k_b, xs[pick])
-        boot[:, prob.free] = xb
-        boot[~usable] = w_best
-    report(0.6, "bootstrap done")
-    alpha = 1.0 - confidence
-    if n_bootstrap:
-        ci = np.quantile(boot, [alpha / 2, 1 - alpha / 2], axis=0).T
-    else:
-        ci = np.full((g, 2), np.nan)
-    ci[ref] = w0[ref]
+    if not (prob.free.size and n_bootstrap):
+        return boot
+    counts = rng.multinomial(n, np.full(n, 1.0 / n), size=n_bootstrap)
+    extra = _random_starts(rng, prob.bounds, n_bootstrap)
+    k_b = kappa[None] * counts
+    usable = k_b.sum(axis=1) > 0
+    k_b[~usable] = kappa
+    x0 = np.vstack([np.tile(x_best, (n_bootstrap, 1)), extra])
+    xs, fs = _batched_fit(prob, np.vstack([k_b, k_b]), x0)
+    pick = np.where(fs[:n_bootstrap] <= fs[n_bootstrap:], 0, n_bootstrap) + np.arange(n_bootstrap)
+    boot[:, prob.free] = _polish(prob, k_b, xs[pick])
+    boot[~usable] = w_best
+    return boot
 
-    # Significance: calibrate the same model to uniformly random azimuths.
 
+def _significance(prob, kappa, w0, residuals, m_before, m_after, n_random, seed, rng,
+                  report) -> dict:
+    """Calibrate the same model to ``n_random`` sets of uniformly random azimuths (see
+    :func:`calibrate_arrays`, Notes) and the analytic test against 45 degrees."""
+    d, e = prob.d, prob.e
+    n = kappa.size
     _, z_after, p_analytic = random_misfit_significance(np.abs(residuals), kappa)
     significance = {"random_misfit_deg": 45.0, "n_random": int(n_random), "seed": int(seed),
                     "analytic_z": float(z_after), "analytic_p_value": float(p_analytic)}
-    if n_random:
-        rand = rng.uniform(0.0, 180.0, (n_random, n))
-        two = np.radians(2.0 * rand)
-        c_r, s_r = np.cos(two), np.sin(two)
-        if n_free:
-            n_s = 3  # the default weights and two random starts per data set
-            x0 = np.vstack([_starts(prob, w0, n_s, rng) for _ in range(n_random)])
-            xs, fs = _batched_fit(prob, kappa[None], x0, np.repeat(c_r, n_s, axis=0),
-                                  np.repeat(s_r, n_s, axis=0))
-            best = np.argmin(fs.reshape(n_random, n_s), axis=1) + n_s * np.arange(n_random)
-            w_null = np.tile(prob.base, (n_random, 1))
-            w_null[:, prob.free] = _polish(prob, kappa[None], xs[best], c_r, s_r)
-        else:
-            w_null = np.tile(prob.base, (n_random, 1))
-        pred = np.mod(np.degrees(0.5 * np.arctan2(w_null @ e, w_null @ d)), 180.0)
-        pred0 = _predicted_deg(w0, d, e)
-        res_after = np.abs(np.mod(pred - rand + 90.0, 180.0) - 90.0)
-        res_before = np.abs(np.mod(pred0[None] - rand + 90.0, 180.0) - 90.0)
-        null_after = res_after @ kappa / kappa.sum()
-        null_reduction = res_before @ kappa / kappa.sum() - null_after
-        report(0.95, "random azimuths done")
-        significance.update(
-            p_value=float((1 + np.count_nonzero(null_after <= m_after)) / (1 + n_random)),
-            null_misfit_mean_deg=float(null_after.mean()),
-            null_misfit_p05_deg=float(np.quantile(null_after, 0.05)),
-            reduction_deg=float(m_before - m_after),
-            reduction_p_value=float(
-                (1 + np.count_nonzero(null_reduction >= m_before - m_after)) / (1 + n_random)),
-        )
+    if not n_random:
+        return significance
+    rand = rng.uniform(0.0, 180.0, (n_random, n))
+    two = np.radians(2.0 * rand)
+    c_r, s_r = np.cos(two), np.sin(two)
+    w_null = np.tile(prob.base, (n_random, 1))
+    if prob.free.size:
+        n_s = 3  # the default weights and two random starts per data set
+        x0 = np.vstack([_starts(prob, w0, n_s, rng) for _ in range(n_random)])
+        xs, fs = _batched_fit(prob, kappa[None], x0, np.repeat(c_r, n_s, axis=0),
+                              np.repeat(s_r, n_s, axis=0))
+        best = np.argmin(fs.reshape(n_random, n_s), axis=1) + n_s * np.arange(n_random)
+        w_null[:, prob.free] = _polish(prob, kappa[None], xs[best], c_r, s_r)
+    pred = np.mod(np.degrees(0.5 * np.arctan2(w_null @ e, w_null @ d)), 180.0)
+    pred0 = _predicted_deg(w0, d, e)
+    res_after = np.abs(np.mod(pred - rand + 90.0, 180.0) - 90.0)
+    res_before = np.abs(np.mod(pred0[None] - rand + 90.0, 180.0) - 90.0)
+    null_after = res_after @ kappa / kappa.sum()
+    null_reduction = res_before @ kappa / kappa.sum() - null_after
+    report(0.95, "random azimuths done")
+    significance.update(
+        p_value=float((1 + np.count_nonzero(null_after <= m_after)) / (1 + n_random)),
+        null_misfit_mean_deg=float(null_after.mean()),
+        null_misfit_p05_deg=float(np.quantile(null_after, 0.05)),
+        reduction_deg=float(m_before - m_after),
+        reduction_p_value=float(
+            (1 + np.count_nonzero(null_reduction >= m_before - m_after)) / (1 + n_random)),
+    )
+    return significance
 
-    # Which weights do the data not constrain?
+
+def _constraint_flags(prob, kappa, groups, b, ci, w_best, f_best, residuals, n_bootstrap):
+    """Which weights the data do not constrain, and why: (constrained (G,), {group: reasons})."""
+    d, e = prob.d, prob.e
     one_minus = 1.0 - np.cos(np.radians(2.0 * residuals))
     ksum = kappa.sum()
     mean = np.dot(kappa, one_minus) / ksum
     n_eff = ksum**2 / np.dot(kappa, kappa)
     se = np.sqrt(max(np.dot(kappa, (one_minus - mean) ** 2) / ksum, 0.0) / n_eff)
-    constrained = np.ones(g, dtype=bool)
+    constrained = np.ones(len(groups), dtype=bool)
     flags: dict = {}
-    for i in prob.free:
+    for i in prob.free:  # loop over the few load groups
         reasons = []
         span = b[i, 1] - b[i, 0]
         if n_bootstrap and span > 0 and (ci[i, 1] - ci[i, 0]) >= 0.8 * span:
@@ -715,17 +763,7 @@ def calibrate_arrays(unit, observed_deg, kappa=None, *, groups=None, default_wei
         if reasons:
             constrained[i] = False
             flags[groups[i]] = reasons
-    report(1.0, "calibration done")
-    return CalibrationResult(
-        groups=groups, weights=w_best, default_weights=w0, weights_ci=ci, bounds=b,
-        reference=groups[ref], confidence=float(confidence), misfit_before_deg=m_before,
-        misfit_after_deg=m_after, objective_before=f_before, objective_after=f_best,
-        significance=significance, constrained=constrained, flags=flags,
-        residuals_deg=residuals, predicted_deg=_predicted_deg(w_best, d, e),
-        bootstrap_weights=boot, n_indicators=n,
-        settings={"n_starts": n_starts, "n_bootstrap": n_bootstrap, "n_random": n_random,
-                  "seed": seed},
-    )
+    return constrained, flags
 
 
 def _indicator_columns(indicators):

@@ -23,7 +23,7 @@ Measures
 - dilation tendency ``Td = (sigma_1 - sigma_n) / (sigma_1 - sigma_3)`` (Ferrill et al. 1999,
   GSA Today 9(5));
 - Coulomb failure stress ``CFS = tau - mu (sigma_n - Pp) - C`` (positive: beyond failure);
-- pore-pressure margin ``dPp = (sigma_n - Pp) - (tau - C) / mu``: the pore-pressure increase
+- pore-pressure margin ``margin = (sigma_n - Pp) - (tau - C) / mu``: the pore-pressure increase
   that brings the plane to Coulomb failure (``-CFS / mu``; negative means already beyond).
 
 Traces (GIS lines) become one plane per straight segment: strike from the segment's geodesic

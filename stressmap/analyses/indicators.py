@@ -35,11 +35,12 @@ from __future__ import annotations
 
 import logging
 
+import geopandas as gpd
 import numpy as np
+import pandas as pd
 
 from stressmap.errors import IndicatorFileError, problem
 from stressmap.geo import circular, focal
-from stressmap.io.indicators import read_table, table_from_csv_text, table_from_geojson
 
 __all__ = [
     "TYPES",
@@ -50,9 +51,6 @@ __all__ = [
     "CONVERT_COLUMNS",
     "shmax_from_feature_azimuth",
     "prepare_indicators",
-    "read_indicators",
-    "indicators_from_geojson",
-    "indicators_from_csv_text",
     "summarise",
 ]
 
@@ -154,8 +152,6 @@ def shmax_from_feature_azimuth(kind, azimuth_deg):
 
 def _cells(table, col):
     """(raw object array, numeric float array, empty mask) of one column (absent -> all empty)."""
-    import pandas as pd
-
     n = len(table)
     if col not in table.columns:
         raw = np.full(n, None, dtype=object)
@@ -170,8 +166,6 @@ def _cells(table, col):
 
 def _text(table, col):
     """Stripped strings of one column, "" for empty cells (absent column -> all "")."""
-    import pandas as pd
-
     _, _, empty = _cells(table, col)
     if col not in table.columns:
         return np.full(len(table), "", dtype=object)
@@ -206,9 +200,6 @@ def prepare_indicators(table, skip_bad: bool = False, problems=None, name: str =
         Listing every bad cell (row and column) unless ``skip_bad``; also when no usable row is
         left or a required column is missing.
     """
-    import geopandas as gpd
-    import pandas as pd
-
     n = len(table)
     rows = np.arange(1, n + 1)
     probs = list(problems or [])
@@ -216,14 +207,40 @@ def prepare_indicators(table, skip_bad: bool = False, problems=None, name: str =
     for p in probs:
         if p.get("row") is not None and 1 <= p["row"] <= n:
             bad[p["row"] - 1] = True
-    geometry_bad = bad.copy()  # lon/lat of these rows were not read; do not report them twice
+    _require_columns(table, name)
+    check = _Checker(rows, probs, bad)
+    kind = _check_types(table, check)
+    num = _check_numbers(table, kind, check, geometry_bad=bad.copy())
+    ids = _check_ids(table, rows, check, name)
+    regime = _check_regimes(table, check)
 
-    def flag(mask, col, message_fn):
-        nonlocal bad
-        for i in np.flatnonzero(mask):
-            probs.append(problem(message_fn(i), field=col, row=int(rows[i])))
-        bad |= mask
+    order = {c: i for i, c in enumerate(["geometry"] + _INPUT_COLUMNS)}
+    probs.sort(key=lambda p: (p.get("row") or 0, order.get(p.get("field"), len(order))))
+    if probs and not skip_bad:
+        raise IndicatorFileError(f"{len(probs)} problem(s) in {name}", probs)
+    keep = ~check.bad
+    if not keep.any():
+        raise IndicatorFileError(f"no usable indicator in {name}",
+                                 probs or [problem("the table has no data rows")])
+    if probs:
+        _log.warning("%s: skipped %d bad row(s) (%d problem(s))", name, int(check.bad.sum()),
+                     len(probs))
+    return _derived_table(table, keep, rows, kind, num, ids, regime, probs, name)
 
+
+class _Checker:
+    """Collects problems per (row, column) and marks bad rows (vectorised masks in)."""
+
+    def __init__(self, rows, probs, bad):
+        self.rows, self.probs, self.bad = rows, probs, bad
+
+    def flag(self, mask, col, message_fn):
+        for i in np.flatnonzero(mask):  # one entry per bad cell, for the report
+            self.probs.append(problem(message_fn(i), field=col, row=int(self.rows[i])))
+        self.bad |= mask
+
+
+def _require_columns(table, name):
     missing_cols = [c for c in ("lon", "lat", "type") if c not in table.columns]
     if missing_cols:
         raise IndicatorFileError(
@@ -236,20 +253,26 @@ def prepare_indicators(table, skip_bad: bool = False, problems=None, name: str =
             [problem("required column missing", field="azimuth_deg")],
         )
 
-    # -- type
+
+def _check_types(table, check: _Checker) -> np.ndarray:
+    """Normalised type names (lower case, ``_`` for spaces and dashes)."""
     kind_raw = _text(table, "type")
     kind = (pd.Series(kind_raw, dtype=object).str.lower().str.replace(r"[\s-]+", "_", regex=True)
             .to_numpy(object))
-    known = np.isin(kind, TYPES)
-    flag(kind == "", "type", lambda i: "missing value; one of " + ", ".join(TYPES))
-    flag((kind != "") & ~known, "type",
-         lambda i: f"unknown type {kind_raw[i]!r}; one of " + ", ".join(TYPES))
-    is_focal = kind == "focal_mechanism"
-    is_feature = known & ~is_focal
+    check.flag(kind == "", "type", lambda i: "missing value; one of " + ", ".join(TYPES))
+    check.flag((kind != "") & ~np.isin(kind, TYPES), "type",
+               lambda i: f"unknown type {kind_raw[i]!r}; one of " + ", ".join(TYPES))
+    return kind
 
-    # -- numbers
+
+def _check_numbers(table, kind, check: _Checker, geometry_bad) -> dict:
+    """Numeric columns as floats (NaN where empty), every missing/unreadable/out-of-range cell
+    reported; ``geometry_bad`` rows already have a geometry problem (lon/lat not re-reported)."""
+    n = len(table)
+    is_focal = kind == "focal_mechanism"
+    is_feature = np.isin(kind, TYPES) & ~is_focal
     num = {}
-    for col, (lo, hi) in _RANGES.items():
+    for col, (lo, hi) in _RANGES.items():  # loop over the columns, vectorised over rows
         raw, val, empty = _cells(table, col)
         num[col] = np.where(empty, np.nan, val)
         required = {
@@ -258,50 +281,46 @@ def prepare_indicators(table, skip_bad: bool = False, problems=None, name: str =
         }.get(col, np.zeros(n, bool))
         if col in ("lon", "lat"):
             required = required & ~geometry_bad
-        flag(empty & required, col, lambda i, c=col: "missing value" + (
+        check.flag(empty & required, col, lambda i, c=col: "missing value" + (
             f" (needed for type {kind[i]})" if c not in ("lon", "lat") else ""))
-        flag(~empty & np.isnan(val), col, lambda i, r=raw: f"not a number: {r[i]!r}")
+        check.flag(~empty & np.isnan(val), col, lambda i, r=raw: f"not a number: {r[i]!r}")
         with np.errstate(invalid="ignore"):
             out_of_range = ~empty & np.isfinite(val) & ((val < lo) | (val > hi))
             if col in ("sigma_deg", "weight"):
                 out_of_range |= ~empty & np.isfinite(val) & (val <= 0)
-        flag(out_of_range | (~empty & np.isinf(val)), col,
-             lambda i, v=val, lo=lo, hi=hi, c=col: f"{v[i]:g} is outside " + (
-                 f"(0, {hi:g}]" if c in ("sigma_deg", "weight") else f"[{lo:g}, {hi:g}]"))
+        check.flag(out_of_range | (~empty & np.isinf(val)), col,
+                   lambda i, v=val, lo=lo, hi=hi, c=col: f"{v[i]:g} is outside " + (
+                       f"(0, {hi:g}]" if c in ("sigma_deg", "weight") else f"[{lo:g}, {hi:g}]"))
+    return num
 
-    # -- id
-    if "id" in table.columns:
-        ids = _text(table, "id")
-        flag(ids == "", "id", lambda i: "missing value")
-        id_series = pd.Series(ids, dtype=object)
-        dup = id_series.duplicated(keep="first").to_numpy() & (ids != "")
-        first_row = id_series.map(pd.Series(rows).groupby(ids).min()).to_numpy()
-        flag(dup, "id", lambda i: f"duplicate id {ids[i]!r} (first used in row {first_row[i]})")
-    else:
-        ids = np.array([str(r) for r in rows], dtype=object)
+
+def _check_ids(table, rows, check: _Checker, name: str) -> np.ndarray:
+    """Ids as strings (the data row numbers when the column is absent); empty and repeated ids
+    reported."""
+    if "id" not in table.columns:
         _log.info("%s has no id column; ids are the data row numbers", name)
+        return np.array([str(r) for r in rows], dtype=object)
+    ids = _text(table, "id")
+    check.flag(ids == "", "id", lambda i: "missing value")
+    id_series = pd.Series(ids, dtype=object)
+    dup = id_series.duplicated(keep="first").to_numpy() & (ids != "")
+    first_row = id_series.map(pd.Series(rows).groupby(ids).min()).to_numpy()
+    check.flag(dup, "id", lambda i: f"duplicate id {ids[i]!r} (first used in row {first_row[i]})")
+    return ids
 
-    # -- regime
+
+def _check_regimes(table, check: _Checker) -> np.ndarray:
+    """Regimes in their canonical spelling ("" where not given)."""
     regime_raw = _text(table, "regime")
     mapped = pd.Series(regime_raw, dtype=object).str.lower().map(_REGIME_ALIASES)
     unknown_regime = mapped.isna().to_numpy() & (regime_raw != "")
-    flag(unknown_regime, "regime",
-         lambda i: f"unknown regime {regime_raw[i]!r}; one of normal, strike-slip, reverse")
-    regime = mapped.fillna("").to_numpy(object)
+    check.flag(unknown_regime, "regime",
+               lambda i: f"unknown regime {regime_raw[i]!r}; one of normal, strike-slip, reverse")
+    return mapped.fillna("").to_numpy(object)
 
-    order = {c: i for i, c in enumerate(["geometry"] + _INPUT_COLUMNS)}
-    probs.sort(key=lambda p: (p.get("row") or 0, order.get(p.get("field"), len(order))))
-    if probs and not skip_bad:
-        raise IndicatorFileError(f"{len(probs)} problem(s) in {name}", probs)
-    keep = ~bad
-    if not keep.any():
-        raise IndicatorFileError(f"no usable indicator in {name}",
-                                 probs or [problem("the table has no data rows")])
-    if probs:
-        _log.warning("%s: skipped %d bad row(s) (%d problem(s))", name, int(bad.sum()), len(probs))
 
-    # -- derived quantities (vectorised over the kept rows)
-    k = keep
+def _derived_table(table, k, rows, kind, num, ids, regime, probs, name):
+    """The kept rows with SHmax, uncertainty, weight and focal quantities (vectorised)."""
     kind_k = kind[k]
     lon = num["lon"][k]
     lon = np.where(lon >= 180.0, lon - 360.0, lon)
@@ -319,21 +338,11 @@ def prepare_indicators(table, skip_bad: bool = False, problems=None, name: str =
     mech_class = np.where(fk, foc["mechanism_class"], "").astype(object)
     regime_k = regime[k]
     regime_k = np.where((regime_k == "") & np.isin(mech_class, REGIMES), mech_class, regime_k)
-
     data = {
-        "id": ids[k],
-        "lon": lon,
-        "lat": lat,
-        "depth_km": num["depth_km"][k],
-        "type": kind_k,
-        "azimuth_deg": num["azimuth_deg"][k],
-        "strike_deg": num["strike_deg"][k],
-        "dip_deg": num["dip_deg"][k],
-        "rake_deg": num["rake_deg"][k],
-        "sigma_deg": sigma_out,
-        "weight": weight_out,
-        "regime": regime_k.astype(object),
-        "shmax_azimuth_deg": shmax,
+        "id": ids[k], "lon": lon, "lat": lat, "depth_km": num["depth_km"][k], "type": kind_k,
+        "azimuth_deg": num["azimuth_deg"][k], "strike_deg": num["strike_deg"][k],
+        "dip_deg": num["dip_deg"][k], "rake_deg": num["rake_deg"][k], "sigma_deg": sigma_out,
+        "weight": weight_out, "regime": regime_k.astype(object), "shmax_azimuth_deg": shmax,
     }
     for col in FOCAL_COLUMNS:
         # Angles rounded to 1e-9 degree: removes round-off such as plunges of 2e-15 or -0.0.
@@ -349,41 +358,6 @@ def prepare_indicators(table, skip_bad: bool = False, problems=None, name: str =
     gdf.attrs["skipped"] = probs
     gdf.attrs["source"] = name
     return gdf
-
-
-def read_indicators(path, skip_bad: bool = False):
-    """Read, validate and convert an indicator file (CSV, GeoJSON or GeoPackage).
-
-    See :func:`prepare_indicators` for the result; file reading is in
-    :mod:`stressmap.io.indicators`.
-    """
-    from pathlib import Path
-
-
-    table, probs = read_table(path)
-    return prepare_indicators(table, skip_bad=skip_bad, problems=probs, name=Path(path).name)
-
-
-def indicators_from_geojson(doc, skip_bad: bool = False, field: str = "indicators"):
-    """Indicators from a GeoJSON FeatureCollection dict (as sent to the HTTP service)."""
-
-    table, probs = table_from_geojson(doc, field=field)
-    return prepare_indicators(table, skip_bad=skip_bad, problems=probs, name=field)
-
-
-def indicators_from_csv_text(text: str, skip_bad: bool = False, name: str = "indicators"):
-    """Indicators from CSV text.
-
-    Examples
-    --------
-    >>> gdf = indicators_from_csv_text(
-    ...     "id,lon,lat,type,azimuth_deg\\nB1,5,45,breakout,10\\nT1,5,45,tensile_fracture,10\\n")
-    >>> gdf["shmax_azimuth_deg"].tolist(), gdf["sigma_deg"].tolist(), gdf["weight"].tolist()
-    ([100.0, 10.0], [20.0, 20.0], [1.0, 1.0])
-    """
-
-    table, probs = table_from_csv_text(text, name)
-    return prepare_indicators(table, skip_bad=skip_bad, problems=probs, name=name)
 
 
 def _stats(az, w):

@@ -50,6 +50,8 @@ __all__ = [
     "complete_magnitudes",
     "regime_from_magnitudes",
     "frictional_ratio",
+    "shape_ratio_of",
+    "regime_fields",
     "principal_tensor_ned",
 ]
 
@@ -355,6 +357,29 @@ def stress_polygon(sv_mpa, pp_mpa, mu):
     return np.stack([np.stack(c, axis=-1) for c in corners], axis=-2)
 
 
+def regime_fields(sv_mpa, pp_mpa, mu) -> dict:
+    """The stress polygon split by Anderson regime: ``regime -> (3, 2)`` triangle corners
+    (Shmin, SHmax) in MPa, counter-clockwise.
+
+    The lines Shmin = Sv and SHmax = Sv cut :func:`stress_polygon` into the normal (lower left),
+    strike-slip (upper left) and reverse (upper right) fields.
+
+    Examples
+    --------
+    >>> {k: v.round(2).tolist() for k, v in regime_fields(70.0, 30.0, 0.6).items()}
+    ... # doctest: +NORMALIZE_WHITESPACE
+    {'normal': [[42.82, 42.82], [70.0, 70.0], [42.82, 70.0]],
+     'strike-slip': [[42.82, 70.0], [70.0, 70.0], [70.0, 154.78]],
+     'reverse': [[70.0, 70.0], [154.78, 154.78], [70.0, 154.78]]}
+    """
+    _, sv, _, floor, ceiling = (float(v) for v in _polygon_corners(sv_mpa, pp_mpa, mu))
+    return {
+        "normal": np.array([[floor, floor], [sv, sv], [floor, sv]]),
+        "strike-slip": np.array([[floor, sv], [sv, sv], [sv, ceiling]]),
+        "reverse": np.array([[sv, sv], [ceiling, ceiling], [sv, ceiling]]),
+    }
+
+
 def frictional_equilibrium(sv_mpa, pp_mpa, mu, regime, shape_ratio):
     """Central estimate of (SHmax, Shmin), MPa: crust at the frictional limit in ``regime``.
 
@@ -442,6 +467,24 @@ def regime_from_magnitudes(shmax_mpa, shmin_mpa, sv_mpa):
     shmax, shmin, sv = np.broadcast_arrays(*(np.asarray(a, dtype=float)
                                              for a in (shmax_mpa, shmin_mpa, sv_mpa)))
     return np.where(shmax < sv, 0, np.where(shmin > sv, 2, 1)).astype(np.int8)
+
+
+def shape_ratio_of(shmax_mpa, shmin_mpa, sv_mpa):
+    """Shape ratio phi = (S2 - S3)/(S1 - S3) of the three principal magnitudes (NaN when
+    S1 == S3, where it is undefined).
+
+    Examples
+    --------
+    >>> shape_ratio_of([84.0, 60.0], [48.0, 40.0], [69.7, 70.0]).round(4).tolist()
+    [0.6028, 0.6667]
+    >>> bool(np.isnan(shape_ratio_of(50.0, 50.0, 50.0)))
+    True
+    """
+    s = np.sort(np.stack(np.broadcast_arrays(*(np.asarray(a, dtype=float)
+                                               for a in (shmax_mpa, shmin_mpa, sv_mpa)))), axis=0)
+    span = s[2] - s[0]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(span > 0, (s[1] - s[0]) / np.where(span > 0, span, 1.0), np.nan)
 
 
 def frictional_ratio(shmax_mpa, shmin_mpa, sv_mpa, pp_mpa):

@@ -288,7 +288,7 @@ def run_profile(req: WellRequest, model=None, model_info=None) -> dict:
 
 
 def _planes(req: WellRequest, notes: list) -> dict:
-    planes = sitescreen._collect_planes(req.site, notes)
+    planes = sitescreen.collect_planes(req.site, notes)
     return planes
 
 

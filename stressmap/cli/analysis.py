@@ -10,18 +10,18 @@ from stressmap import CAUTION, validate
 from stressmap.analyses.calibrate import calibrate
 from stressmap.analyses.ensemble import (
     ensemble_grid,
-    ensemble_png,
     ensemble_points,
     flatten_percentiles,
 )
-from stressmap.analyses.indicators import read_indicators
 from stressmap.cli._progress import progress_bar
 from stressmap.cli.model import parse_bbox
 from stressmap.errors import InputError, problem
 from stressmap.formats import export
+from stressmap.io.indicators import read_indicators
 from stressmap.io.networkdir import read_any_model
 from stressmap.io.points import read_points
 from stressmap.model import plate_outline
+from stressmap.plot.ensemble import ensemble_png
 from stressmap.plot.maps import ensemble_regime_png
 
 __all__ = ["register", "parse_bounds", "parse_vary", "parse_percentiles", "load_config"]
@@ -260,7 +260,7 @@ def _cmd_ensemble(args) -> int:
         bar.close()
     meta = {"caution": CAUTION, "model_name": model.summary.get("name", ""),
             "build_time": model.summary.get("build_time", ""), "members": args.members,
-            "seed": seed, "distributions": json.dumps(distributions, sort_keys=True)}
+            "seed": seed, "distributions": ds.attrs.get("distributions", "{}")}
     caption = (f"Model {meta['model_name']} built {meta['build_time']}; {args.members} members, "
                f"seed {seed}")
     if args.regime_png:
@@ -280,6 +280,8 @@ def _cmd_ensemble(args) -> int:
              else f"a {ds.sizes['lat']} x {ds.sizes['lon']} grid")
     print(f"ensemble of {args.members} members over {where} ({n_in} inside the plate) -> {out}"
           + (f"; regime probability map -> {args.regime_png}" if args.regime_png else ""))
+    if ds.attrs.get("distributions_source", "given") != "given":
+        print(f"note: distributions: {ds.attrs['distributions_source']}")
     print(f"note: {CAUTION}")
     return 0
 

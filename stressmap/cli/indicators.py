@@ -23,16 +23,17 @@ import sys
 from pathlib import Path
 
 from stressmap.analyses.compare import COMPARISON_COLUMNS, compare
-from stressmap.analyses.indicators import CONVERT_COLUMNS, read_indicators, summarise
+from stressmap.analyses.indicators import CONVERT_COLUMNS, summarise
 from stressmap.analyses.observed import (
-    observed_geojson,
+    DEFAULT_MAX_HALFWIDTH_DEG,
+    DEFAULT_MIN_COUNT,
     observed_grid,
-    observed_netcdf_bytes,
 )
 from stressmap.cli.model import parse_bbox, parse_weights
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
-from stressmap.io.indicators import write_indicators
+from stressmap.formats.observed import observed_geojson, observed_netcdf_bytes
+from stressmap.io.indicators import read_indicators, write_indicators
 from stressmap.io.networkdir import read_any_model
 from stressmap.model.network_predict import plate_at
 from stressmap.plot.indicators import comparison_map_png, rose_png
@@ -111,7 +112,7 @@ def _cmd_smooth(args) -> int:
     gdf = _read(args)
     ds = observed_grid(gdf, bbox=parse_bbox(args.bbox), radius_km=args.radius_km,
                        spacing_km=args.spacing_km, min_count=args.min_count,
-                       max_dispersion_deg=args.max_dispersion_deg)
+                       max_halfwidth_deg=args.max_halfwidth_deg)
     meta = {"source_file": Path(args.file).name}
     if args.output is None:
         print(json.dumps(observed_geojson(ds, meta), allow_nan=False))
@@ -226,16 +227,19 @@ def register(sub) -> None:
     sm = sub.add_parser("smooth", help="grid the observed SHmax field of an indicator file",
                         description="Weighted axial mean SHmax of the indicators within a search "
                                     "radius of each grid node (distance and uncertainty weights), "
-                                    "with count and dispersion per node.")
+                                    "with count, dispersion and the confidence half-width of the mean per node.")
     common(sm)
     sm.add_argument("--bbox", required=True, metavar="W,S,E,N",
                     help="grid bounding box in degrees (write --bbox=W,S,E,N when W is negative)")
     sm.add_argument("--radius-km", required=True, type=float, metavar="R", help="search radius, km")
     sm.add_argument("--spacing-km", type=float, metavar="K", help="node spacing, km (default R/2)")
-    sm.add_argument("--min-count", type=int, default=3, metavar="N",
-                    help="fewest indicators within the radius for a mean (default 3)")
-    sm.add_argument("--max-dispersion-deg", type=float, default=25.0, metavar="D",
-                    help="largest axial standard deviation for a mean, degrees (default 25)")
+    sm.add_argument("--min-count", type=int, default=DEFAULT_MIN_COUNT, metavar="N",
+                    help="fewest indicators within the radius for a mean (default "
+                         f"{DEFAULT_MIN_COUNT}: a mean at the half-width limit is then significant "
+                         "by the Rayleigh test at 1 %%)")
+    sm.add_argument("--max-halfwidth-deg", type=float, default=DEFAULT_MAX_HALFWIDTH_DEG,
+                    metavar="H", help="largest 95 %% confidence half-width of a node's mean SHmax, "
+                                      f"degrees (default {DEFAULT_MAX_HALFWIDTH_DEG:g})")
     sm.add_argument("-o", "--output", metavar="OUT",
                     help="output file, .nc (CF netCDF) or .geojson; GeoJSON on stdout if omitted")
     sm.set_defaults(handler=_cmd_smooth)

@@ -13,22 +13,21 @@ import re
 from pathlib import Path
 
 from stressmap import validate
-from stressmap.analyses.indicators import read_indicators
 from stressmap.analyses.sitescreen import (
     parse_plane_text,
     parse_request,
     parse_site_text,
-    result_csv,
-    result_geojson,
-    result_json,
     screen,
 )
 from stressmap.cli.model import parse_weights
 from stressmap.errors import InputError, problem
+from stressmap.formats.screening import result_csv, result_geojson, result_json
 from stressmap.io.faults import read_fault_file
+from stressmap.io.indicators import read_indicators
 from stressmap.io.networkdir import read_any_model
 from stressmap.io.tables import read_csv_table
 from stressmap.plot import screening as plot_screening
+from stressmap.plot.margins import margin_curves_png
 
 __all__ = ["register", "build_request", "read_density_profile", "parse_pair", "format_text"]
 
@@ -64,9 +63,11 @@ def read_density_profile(path) -> dict:
         problems: list = []
         for col in ("top_km", "density_kg_m3", "gradient_kg_m3_per_km"):
             if col in frame.columns:
-                out[col] = [validate.number(validate.cell(v), col, problems, row=i + 1, text=True,
-                                            required=True)
-                            for i, v in enumerate(frame[col].tolist())]
+                optional = col == "gradient_kg_m3_per_km"  # an empty cell: no gradient in that layer
+                values = [validate.number(validate.cell(v), col, problems, row=i + 1, text=True,
+                                          required=not optional)
+                          for i, v in enumerate(frame[col].tolist())]
+                out[col] = [0.0 if optional and v is None else v for v in values]
         validate.raise_problems(problems, f"density profile {path}: {len(problems)} bad cell(s)")
     except InputError as exc:  # the fields are the file's columns: they keep their names
         raise InputError(exc.message, [{**p, "file": str(path)} for p in exc.problems]) from None
@@ -101,7 +102,7 @@ def build_request(args) -> dict:
             doc["planes"] += [{"strike_deg": s, "dip_deg": d, "name": n}
                               for s, d, n in zip(pl["strike_deg"], pl["dip_deg"], pl["name"])]
         else:
-            doc["faults"] = collection
+            doc["faults"] = parsed
     unc = {}
     for key, option in (("friction_range", "--friction-range"),
                         ("pore_pressure_range_mpa", "--pore-pressure-range-mpa"),
@@ -170,11 +171,11 @@ def format_text(doc: dict) -> str:
         lines.append(f"  Uncertainty: {unc['samples']} samples; {unc['orientation_source']}")
     if doc["planes"]:
         lines.append("")
-        has_p = "pore_pressure_margin_p05_mpa" in doc["planes"][0]
+        has_p = "margin_median_mpa" in doc["planes"][0]
         head = (f"{'rank':>4} {'strike':>6} {'dip':>4} {'sn MPa':>7} {'tau MPa':>7} {'Ts':>5} "
-                f"{'Td':>5} {'dPp MPa':>8}")
+                f"{'Td':>5} {'margin':>8}")
         if has_p:
-            head += f" {'dPp p5-p95':>13} {'P(<thr)':>7}"
+            head += f" {'80% of samples':>15} {'reach':>6}"
         lines.append(head + "  name")
         for p in doc["planes"]:
             row = (f"{p['rank']:>4} {p['strike_deg']:6.1f} {p['dip_deg']:4.0f} "
@@ -182,13 +183,15 @@ def format_text(doc: dict) -> str:
                    f"{_fmt(p['slip_tendency']):>5} {_fmt(p['dilation_tendency']):>5} "
                    f"{_fmt(p['pore_pressure_margin_mpa'], 1):>8}")
             if has_p:
-                band = (f"{_fmt(p['pore_pressure_margin_p05_mpa'], 1)}.."
-                        f"{_fmt(p['pore_pressure_margin_p95_mpa'], 1)}")
-                row += f" {band:>13} {_fmt(p['probability_margin_below_threshold']):>7}"
+                band = (f"{_fmt(p['margin_band_low_mpa'], 1)}.."
+                        f"{_fmt(p['margin_band_high_mpa'], 1)}")
+                row += f" {band:>15} {_fmt(p['reactivation_share']):>6}"
             seg = f" #{p['segment']}" if p.get("segment", -1) > 0 else ""
             lines.append(f"{row}  {p['name']}{seg}")
-        lines.append("  (Ts slip tendency, Td dilation tendency, dPp pore-pressure increase to "
-                     "failure)")
+        lines.append("  (Ts slip tendency, Td dilation tendency, margin: the pore-pressure increase "
+                     "to failure, MPa" + ("; 80% of samples: the central band of the sampled "
+                                          "margins; reach: share of samples within the "
+                                          "margin threshold" if has_p else "") + ")")
     for note in doc.get("notes", []):
         lines.append(f"note: {note}")
     lines += ["", f"CAUTION: {doc['caution']}"]
@@ -253,6 +256,8 @@ def _run(args) -> int:
             target = getattr(args, opt)
             if target:
                 Path(target).write_bytes(getattr(plot_screening, fn)(result))
+    if args.margins_png:
+        Path(args.margins_png).write_bytes(margin_curves_png(result))
     if args.json:
         print(json.dumps(out, indent=1))
     else:
@@ -327,13 +332,16 @@ def register(subparsers) -> None:
                         "'{\"ridge\": {\"distribution\": \"uniform\", \"low\": 0.5, "
                         "\"high\": 1.5}}' (default: the model's, else each group 0.5-1.5)")
     g.add_argument("--margin-threshold-mpa", type=float,
-                   help="report the probability that the margin falls below this (default 0)")
+                   help="report the share of samples whose margin falls below this, MPa "
+                        "(default 0)")
     g = p.add_argument_group("files")
     g.add_argument("--csv", metavar="FILE", help="write the ranked planes as CSV")
     g.add_argument("--geojson", metavar="FILE", help="write planes/trace segments as GeoJSON")
     g.add_argument("--mohr-png", metavar="FILE", help="write a Mohr diagram")
     g.add_argument("--polygon-png", metavar="FILE", help="write the stress polygon")
     g.add_argument("--map-png", metavar="FILE", help="write a map of traces coloured by margin")
+    g.add_argument("--margins-png", metavar="FILE",
+                   help="write each fault's cumulative margin curve over the samples")
     # option destinations -> their long flags, so notes and errors name what the user typed
     flag_names = {a.dest: next(o for o in a.option_strings if o.startswith("--"))
                   for a in p._actions if any(o.startswith("--") for o in a.option_strings)}

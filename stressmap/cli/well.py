@@ -53,7 +53,7 @@ def _planes(args, doc: dict) -> None:
             planes += [{"strike_deg": s, "dip_deg": d, "name": n}
                        for s, d, n in zip(pl["strike_deg"], pl["dip_deg"], pl["name"])]
         else:
-            doc["faults"] = collection
+            doc["faults"] = parsed
     if planes:
         doc["planes"] = planes
 

@@ -24,7 +24,7 @@ from stressmap.geo import focal
 from stressmap.geo.sphere import great_circle_distance_km
 from stressmap.model import build_model, predict_points
 
-__all__ = ["make_demo_indicators", "SEED", "COUNTS"]
+__all__ = ["make_demo_indicators", "demo_id", "SEED", "COUNTS"]
 
 SEED = 20261201
 
@@ -38,8 +38,19 @@ COUNTS = {
     "geological": 32,
     "focal_mechanism": 80,
 }
-_PREFIX = {"breakout": "BO", "tensile_fracture": "TF", "hydraulic_fracture": "HF", "overcoring": "OC",
-           "fault_slip_inversion": "FS", "geological": "GE", "focal_mechanism": "FM"}
+
+
+def demo_id(label: str, number: int) -> str:
+    """Id of a fictional demo indicator from our own type name (or anomaly label) and a number.
+
+    Examples
+    --------
+    >>> demo_id("tensile_fracture", 7)
+    'MER-tensile-fracture-007'
+    """
+    return f"MER-{label.replace('_', '-')}-{number:03d}"
+
+
 _DEPTH_KM = {"breakout": (1.0, 5.0), "tensile_fracture": (1.0, 4.0), "hydraulic_fracture": (0.3, 3.0),
              "overcoring": (0.05, 1.0), "fault_slip_inversion": (0.0, 2.0), "geological": (0.0, 0.0),
              "focal_mechanism": (4.0, 25.0)}
@@ -103,7 +114,7 @@ def make_demo_indicators(model, seed: int = SEED):
         obs = np.mod(true + np.clip(rng.normal(0.0, sigma), -60.0, 60.0), 180.0)
         lo, hi = _DEPTH_KM[kind]
         rows = {
-            "id": [f"MER-{_PREFIX[kind]}{i + 1:03d}" for i in range(count)],
+            "id": [demo_id(kind, i + 1) for i in range(count)],
             "lon": np.round(pts["lon"].values, 4), "lat": np.round(pts["lat"].values, 4),
             "depth_km": np.round(rng.uniform(lo, hi, count), 2),
             "type": kind,
@@ -132,7 +143,7 @@ def make_demo_indicators(model, seed: int = SEED):
     turned = np.mod(pred["shmax_azimuth_deg"].values + 75.0 + rng.normal(0, 8.0, n_cluster), 180.0)
     kinds = np.where(np.arange(n_cluster) % 3 == 0, "tensile_fracture", "breakout")
     frames.append(pd.DataFrame({
-        "id": [f"MER-AN{i + 1:03d}" for i in range(n_cluster)],
+        "id": [demo_id("local-anomaly", i + 1) for i in range(n_cluster)],
         "lon": np.round(clon, 4), "lat": np.round(clat, 4),
         "depth_km": np.round(rng.uniform(1.0, 3.5, n_cluster), 2), "type": kinds,
         "azimuth_deg": np.round(np.mod(turned + np.where(kinds == "breakout", 90.0, 0.0), 180.0), 1),
@@ -145,7 +156,7 @@ def make_demo_indicators(model, seed: int = SEED):
     n_rand = 12
     pts = _inside_points(model, n_rand, rng)
     frames.append(pd.DataFrame({
-        "id": [f"MER-RX{i + 1:03d}" for i in range(n_rand)],
+        "id": [demo_id("random-orientation", i + 1) for i in range(n_rand)],
         "lon": np.round(pts["lon"].values, 4), "lat": np.round(pts["lat"].values, 4),
         "depth_km": np.round(rng.uniform(0.5, 4.0, n_rand), 2), "type": "geological",
         "azimuth_deg": np.round(rng.uniform(0, 180, n_rand), 1),

@@ -68,7 +68,9 @@ def points_geojson(ds, extra_properties: list[dict] | None = None, meta: dict | 
     ({'type': 'Point', 'coordinates': [10.0, -5.0]}, {'well': 'A-1', 'shmax_azimuth_deg': None}, 'm1')
     """
     lon, lat, names, cols = records(ds)
-    columns = [[_plain(v) for v in col.tolist()] for col in cols]
+    # "" is how a text variable (regime) says "no value" in a Dataset; JSON says null
+    columns = [[None if v == "" else _plain(v) for v in col.tolist()]
+               if col.dtype.kind in "OUS" else [_plain(v) for v in col.tolist()] for col in cols]
     features = []
     for i in range(lon.size):
         props: dict = {}

@@ -1,106 +1,35 @@
 """Stress-indicator files: reading CSV / GeoJSON / GeoPackage into raw tables, writing CSV / GeoJSON.
 
-The reader returns the cells as they are (strings for CSV, JSON values for GeoJSON properties)
-together with ``lon``/``lat`` (from point geometries for vector files) and any problems with
-geometries; :func:`stressmap.analyses.indicators.prepare_indicators` validates and converts them. Rows
-are numbered as data rows from 1 (a CSV header and ``#`` comment lines are not counted; in a
-vector file, row N is the N-th feature).
+Text and GeoJSON conversion is :mod:`stressmap.formats.indicators`; validation and conversion to
+SHmax is :func:`stressmap.analyses.indicators.prepare_indicators`; this module only touches paths.
 """
 
 from __future__ import annotations
 
-import io
 import json
 from pathlib import Path
 
 import numpy as np
 
+from stressmap.analyses.indicators import prepare_indicators
 from stressmap.errors import IndicatorFileError, problem
+from stressmap.formats.indicators import (
+    indicators_csv,
+    indicators_geojson,
+    normalise_columns,
+    table_from_csv_text,
+    table_from_geojson,
+)
 
 __all__ = [
     "read_table",
+    "read_indicators",
     "table_from_csv_text",
     "table_from_geojson",
     "indicators_csv",
     "indicators_geojson",
     "write_indicators",
 ]
-
-
-def _normalise_columns(frame):
-    frame.columns = [str(c).strip().lower() for c in frame.columns]
-    return frame
-
-
-def table_from_csv_text(text: str, name: str = "CSV"):
-    """A raw table (pandas DataFrame of strings) from CSV text; ``#`` starts a comment line.
-
-    Examples
-    --------
-    >>> t, probs = table_from_csv_text("# fictional\\nid,lon,lat\\nA,1,2\\n")
-    >>> t.to_dict(orient="records"), probs
-    ([{'id': 'A', 'lon': '1', 'lat': '2'}], [])
-    """
-    import pandas as pd
-
-    try:
-        frame = pd.read_csv(io.StringIO(text), comment="#", dtype=str, keep_default_na=False,
-                            skipinitialspace=True)
-    except pd.errors.EmptyDataError as exc:
-        raise IndicatorFileError(f"{name} is empty", [problem("no header row and no data")]) from exc
-    except (ValueError, pd.errors.ParserError) as exc:
-        raise IndicatorFileError(f"cannot read {name} as CSV: {exc}",
-                                 [problem(f"not a readable CSV table: {exc}")]) from exc
-    return _normalise_columns(frame), []
-
-
-def table_from_geojson(doc, field: str = "indicators"):
-    """A raw table from a GeoJSON FeatureCollection of Point features (properties + lon/lat).
-
-    Returns ``(table, problems)``; a feature whose geometry is not a Point gets a problem with its
-    row (1-based feature number) and NaN coordinates.
-
-    Examples
-    --------
-    >>> fc = {"type": "FeatureCollection", "features": [
-    ...     {"type": "Feature", "geometry": {"type": "Point", "coordinates": [5, 45]},
-    ...      "properties": {"id": "W1", "type": "breakout", "azimuth_deg": 10}},
-    ...     {"type": "Feature", "geometry": None, "properties": {"id": "W2"}}]}
-    >>> t, probs = table_from_geojson(fc)
-    >>> t["lon"].tolist(), probs[0]["row"], probs[0]["field"]
-    ([5.0, nan], 2, 'geometry')
-    """
-    import pandas as pd
-
-    if not isinstance(doc, dict) or doc.get("type") != "FeatureCollection" or not isinstance(
-        doc.get("features"), list
-    ):
-        raise IndicatorFileError(
-            "expected a GeoJSON FeatureCollection of Point features",
-            [problem("must be a GeoJSON FeatureCollection with a 'features' list", field=field)],
-        )
-    feats = doc["features"]
-    props, lon, lat, problems = [], [], [], []
-    for i, feat in enumerate(feats):
-        feat = feat if isinstance(feat, dict) else {}
-        p = feat.get("properties")
-        props.append({str(k).strip().lower(): v for k, v in p.items()} if isinstance(p, dict) else {})
-        geom = feat.get("geometry")
-        coords = geom.get("coordinates") if isinstance(geom, dict) else None
-        ok = (isinstance(geom, dict) and geom.get("type") == "Point" and isinstance(coords, list)
-              and len(coords) >= 2 and all(isinstance(c, (int, float)) and not isinstance(c, bool)
-                                           for c in coords[:2]))
-        if not ok:
-            kind = geom.get("type") if isinstance(geom, dict) else None
-            problems.append(problem(f"geometry must be a Point with [lon, lat] numbers, got {kind}",
-                                    field="geometry", row=i + 1))
-        lon.append(float(coords[0]) if ok else np.nan)
-        lat.append(float(coords[1]) if ok else np.nan)
-    table = pd.DataFrame.from_records(props, index=range(len(feats)))
-    table = table.drop(columns=[c for c in ("lon", "lat") if c in table.columns])
-    table.insert(0, "lat", lat)
-    table.insert(0, "lon", lon)
-    return _normalise_columns(table), problems
 
 
 def read_table(path):
@@ -138,7 +67,7 @@ def read_table(path):
         is_point = kinds == "Point"
         problems = [problem(f"geometry must be a Point, got {kinds[i]}", field="geometry", row=int(i) + 1)
                     for i in np.flatnonzero(~is_point)]
-        table = _normalise_columns(gdf.drop(columns=gdf.geometry.name).reset_index(drop=True))
+        table = normalise_columns(gdf.drop(columns=gdf.geometry.name).reset_index(drop=True))
         table = table.drop(columns=[c for c in ("lon", "lat") if c in table.columns])
         safe = geoms.where(is_point)
         table.insert(0, "lat", np.where(is_point, safe.y.to_numpy(float), np.nan))
@@ -150,77 +79,13 @@ def read_table(path):
     )
 
 
-def _jsonable(v):
-    if isinstance(v, np.generic):
-        v = v.item()
-    if isinstance(v, float) and not np.isfinite(v):
-        return None
-    if v is None or (not isinstance(v, (str, bytes, list, dict)) and _isna(v)):
-        return None
-    return v
+def read_indicators(path, skip_bad: bool = False):
+    """Read, validate and convert an indicator file (CSV, GeoJSON or GeoPackage).
 
-
-def _isna(v) -> bool:
-    import pandas as pd
-
-    try:
-        return bool(pd.isna(v))
-    except (TypeError, ValueError):
-        return False
-
-
-def indicators_geojson(frame, columns=None, meta: dict | None = None) -> dict:
-    """RFC 7946 FeatureCollection of an indicator table (columns ``lon``/``lat`` become the geometry).
-
-    ``meta`` entries go in top-level foreign members (e.g. ``caution``).
+    See :func:`stressmap.analyses.indicators.prepare_indicators` for the result.
     """
-    columns = [c for c in (columns or frame.columns) if c not in ("lon", "lat", "geometry")]
-    lon = frame["lon"].to_numpy(float)
-    lat = frame["lat"].to_numpy(float)
-    values = [frame[c].to_numpy(object) for c in columns]
-    feats = [
-        {
-            "type": "Feature",
-            "geometry": {"type": "Point", "coordinates": [float(lon[i]), float(lat[i])]},
-            "properties": {c: _jsonable(v[i]) for c, v in zip(columns, values)},
-        }
-        for i in range(len(frame))
-    ]
-    out = {"type": "FeatureCollection"}
-    out.update(meta or {})
-    out["features"] = feats
-    return out
-
-
-def indicators_csv(frame, columns=None, meta: dict | None = None) -> str:
-    """CSV text of an indicator table; ``meta`` as leading ``# key: value`` comment lines.
-
-    Cells that a spreadsheet would run as a formula (starting with ``=``, ``+``, ``-``, ``@``) are
-    quoted with a leading apostrophe, except numbers.
-    """
-    columns = list(columns or [c for c in frame.columns if c != "geometry"])
-    out = frame[columns].copy()
-    from pandas.api.types import is_string_dtype
-
-    for c in out.columns:
-        if out[c].dtype == object or is_string_dtype(out[c].dtype):  # pandas 3: str dtype
-            out[c] = out[c].map(_csv_cell)
-    head = "".join(f"# {k}: {v}\n" for k, v in (meta or {}).items())
-    return head + out.to_csv(index=False, float_format="%.10g", lineterminator="\n")
-
-
-def _csv_cell(v):
-    if isinstance(v, str) and v[:1] in ("=", "+", "-", "@") and not _is_number(v):
-        return "'" + v
-    return v
-
-
-def _is_number(s: str) -> bool:
-    try:
-        float(s)
-    except ValueError:
-        return False
-    return True
+    table, probs = read_table(path)
+    return prepare_indicators(table, skip_bad=skip_bad, problems=probs, name=Path(path).name)
 
 
 def write_indicators(frame, path, columns=None, meta: dict | None = None) -> Path:

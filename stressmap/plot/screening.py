@@ -9,10 +9,12 @@ its footer. Geometry follows the textbook constructions:
   tau = C + mu sigma_n', and each plane as a point, coloured by its pore-pressure margin;
   equal scales on both axes so circles are round.
 - Stress polygon in the (Shmin, SHmax) plane: the frictional-limit polygon with the lines
-  Shmin = Sv and SHmax = Sv that separate normal (NF), strike-slip (SS) and reverse (RF)
-  faulting, the SHmax = Shmin diagonal, the central estimate and, when sampled, its spread.
-- Map: trace segments coloured by margin on a sequential colour-blind-safe colormap
-  (cividis; low margin dark), strike/dip planes as points, the site with its SHmax direction,
+  Shmin = Sv and SHmax = Sv that separate the normal, strike-slip and reverse faulting fields
+  (each lightly shaded in the colour the maps give that regime and named in words), the
+  SHmax = Shmin diagonal, the central estimate and, when sampled, its spread.
+- Map: trace segments coloured by margin on our own sequential scale (ember: dark brown near
+  failure to pale sand far from it; lightness falls monotonically, so it reads without colour
+  vision), strike/dip planes as points, the site with its SHmax direction,
   a scale bar; longitude scaled by cos(latitude).
 """
 
@@ -24,18 +26,26 @@ import textwrap
 
 import numpy as np
 
-from stressmap.analyses.screening import stress_polygon
+from stressmap.analyses.screening import regime_fields, stress_polygon
 from stressmap.constants import CAUTION
 from stressmap.plot.labels import freeze_layout, place_labels, text_box
 from stressmap.plot.maps import MapWindow, draw_north_arrow, draw_scale_bar, frame_axes
 
 __all__ = [
     "mohr_figure", "mohr_png", "polygon_figure", "polygon_png", "fault_map_figure",
-    "fault_map_png", "footer_text", "MARGIN_CMAP",
+    "fault_map_png", "footer_text", "MARGIN_CMAP", "REGIME_FIELD_STYLE",
 ]
 
-#: Colormap for pore-pressure margins (perceptually uniform, colour-blind safe).
-MARGIN_CMAP = "cividis"
+#: Colours of the pore-pressure margin scale, dark (near failure) to light: our own "ember".
+MARGIN_CMAP = ("#4a1a0c", "#8c3a17", "#c8662a", "#e5a45a", "#f3d9a4", "#faf4e6")
+
+
+def _margin_cmap():
+    """The ember scale of :data:`MARGIN_CMAP` as a matplotlib colormap (low margin dark)."""
+    # matplotlib is only needed for pictures
+    from matplotlib.colors import LinearSegmentedColormap
+
+    return LinearSegmentedColormap.from_list("stressmap-margin", MARGIN_CMAP)
 
 
 def footer_text(result=None) -> str:
@@ -107,7 +117,7 @@ def mohr_figure(result):
     if planes.get("strike_deg") is not None and planes["strike_deg"].size:
         eff = planes["effective_normal_stress_mpa"]
         tau = planes["shear_stress_mpa"]
-        sc = ax.scatter(eff, tau, c=planes["pore_pressure_margin_mpa"], cmap=MARGIN_CMAP,
+        sc = ax.scatter(eff, tau, c=planes["pore_pressure_margin_mpa"], cmap=_margin_cmap(),
                         norm=_margin_norm(planes["pore_pressure_margin_mpa"]), s=28,
                         edgecolors="k", linewidths=0.5, zorder=3, gid="fault-points",
                         label="planes")
@@ -162,17 +172,13 @@ def polygon_figure(result):
     floor, ceiling = verts[0, 0], verts[1, 1]
     fig = _figure(6.8, 6.6)
     ax = fig.add_subplot()
-    ax.add_patch(Polygon(verts, closed=True, fill=True, facecolor="0.93", edgecolor="0.1",
-                         lw=1.6, gid="stress-polygon"))
+    _shade_regime_fields(ax, sv, s["pp_mpa"], s["friction"])
+    ax.add_patch(Polygon(verts, closed=True, fill=False, edgecolor="0.1", lw=1.6,
+                         gid="stress-polygon"))
     ax.plot([floor, sv], [sv, sv], color="0.3", lw=0.9, gid="sv-line-shmax")
     ax.plot([sv, sv], [sv, ceiling], color="0.3", lw=0.9, gid="sv-line-shmin")
     lo, hi = floor - 0.05 * (ceiling - floor), ceiling + 0.05 * (ceiling - floor)
     ax.plot([lo, hi], [lo, hi], color="0.5", lw=0.7, ls=":", gid="diagonal")
-    ax.text((floor + sv) / 2 - 0.02 * (ceiling - floor), (2 * floor + sv) / 3 + 0.06 *
-            (sv - floor) + 0.08 * (sv - floor), "NF", ha="center", fontsize=10, color="0.3")
-    ax.text((floor + sv) / 2, (sv + ceiling) / 2, "SS", ha="center", fontsize=10, color="0.3")
-    ax.text((sv + ceiling) / 2 - 0.06 * (ceiling - sv), (sv + 2 * ceiling) / 3 + 0.05 *
-            (ceiling - sv), "RF", ha="center", fontsize=10, color="0.3")
     if result.samples is not None:
 
         smp = result.samples
@@ -213,6 +219,33 @@ def polygon_figure(result):
     return fig
 
 
+#: Words and fill of each regime field of the stress polygon: the colours of the regime index
+#: (Simpson's A-phi, cividis) at the middle of each regime's range, so the polygon reads like
+#: the maps.
+REGIME_FIELD_STYLE = {
+    "normal": ("normal faulting\n(Sv largest)", 0.5 / 3.0),
+    "strike-slip": ("strike-slip faulting\n(Sv intermediate)", 1.5 / 3.0),
+    "reverse": ("reverse faulting\n(Sv least)", 2.5 / 3.0),
+}
+
+
+def _shade_regime_fields(ax, sv, pp, mu) -> None:
+    """Each regime's part of the polygon lightly filled, named in words at its centroid (above
+    any samples, on a white box)."""
+    from matplotlib import colormaps
+    from matplotlib.patches import Polygon
+
+    cmap = colormaps["cividis"]
+    for regime, tri in regime_fields(sv, pp, mu).items():
+        words, position = REGIME_FIELD_STYLE[regime]
+        ax.add_patch(Polygon(tri, closed=True, facecolor=cmap(position), alpha=0.22, lw=0,
+                             zorder=0, gid=f"regime-field-{regime}"))
+        cx, cy = tri.mean(axis=0)
+        ax.text(cx, cy, words, ha="center", va="center", fontsize=7.5, color="0.15", zorder=6,
+                gid=f"regime-label-{regime}",
+                bbox={"boxstyle": "round,pad=0.25", "fc": "white", "ec": "none", "alpha": 0.8})
+
+
 def polygon_png(result) -> bytes:
     """PNG of :func:`polygon_figure`."""
     return _png(polygon_figure(result))
@@ -242,7 +275,7 @@ def _draw_traces(ax, result, is_seg, norm):
         return None, []
     segs = result.plane_geometry[is_seg].copy()
     segs[..., 0] = _wrap_lon(segs[..., 0], result.site["lon"])
-    lc = LineCollection(segs, cmap=MARGIN_CMAP, norm=norm, linewidths=2.6, gid="fault-traces")
+    lc = LineCollection(segs, cmap=_margin_cmap(), norm=norm, linewidths=2.6, gid="fault-traces")
     lc.set_array(result.planes["pore_pressure_margin_mpa"][is_seg])
     ax.add_collection(lc)
     return lc, [segs.reshape(-1, 2)]
@@ -274,7 +307,7 @@ def _draw_site_planes(ax, result, unlocated, norm, half):
     ends = np.stack([np.sin(strike) * d / coslat, np.cos(strike) * d], axis=-1)  # (k, 2)
     centre = np.array([s["lon"], s["lat"]])
     segs = np.stack([centre - ends, centre + ends], axis=1)
-    lc = LineCollection(segs, cmap=MARGIN_CMAP, norm=norm, linewidths=1.8, zorder=3,
+    lc = LineCollection(segs, cmap=_margin_cmap(), norm=norm, linewidths=1.8, zorder=3,
                         gid="site-planes")
     lc.set_array(result.planes["pore_pressure_margin_mpa"][unlocated])
     ax.add_collection(lc)
@@ -326,7 +359,7 @@ def fault_map_figure(result):
         # and above the site star (a well's image-log planes sit at the site)
         order = np.argsort(-margins[located], kind="stable")
         mappable = ax.scatter(xy[order, 0], xy[order, 1], c=margins[located][order],
-                              cmap=MARGIN_CMAP, norm=norm, marker="s", s=36, edgecolors="k",
+                              cmap=_margin_cmap(), norm=norm, marker="s", s=36, edgecolors="k",
                               linewidths=0.5, zorder=4.5, gid="fault-planes")
         pts.append(xy)
         labels_xy.append(xy)

@@ -129,7 +129,7 @@ def test_demo_anomalies_stand_out(demo_model):
     from importlib import resources
     from pathlib import Path
 
-    from stressmap.analyses.indicators import read_indicators
+    from stressmap.io.indicators import read_indicators
 
     demo = read_indicators(Path(str(resources.files("stressmap.data").joinpath("demo_indicators.csv"))))
     table, summary = compare.compare(demo_model, demo)

@@ -15,6 +15,8 @@ Synthetic unit fields (random (G, P, 3) arrays) test the combination algebra; re
 
 from __future__ import annotations
 
+import json
+
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose, assert_array_equal
@@ -291,3 +293,27 @@ def test_model_ensemble_grid_and_pull_fraction(coarse_demo_model):
     p = (a["prob_normal"] + a["prob_strike_slip"] + a["prob_reverse"]).values
     assert_allclose(p[inside], 1.0)
     assert np.all(a["shmax_std_deg"].values[inside] >= 0)
+
+
+def test_model_ensemble_without_distributions_varies_the_documented_defaults(coarse_demo_model):
+    # README: with no distributions every load group's weight is drawn uniformly from 0.5 to
+    # 1.5, and the result says so; an ensemble of identical members was returned before.
+    from stressmap.analyses.ensemble import DEFAULT_WEIGHT_RANGE, ensemble_points
+
+    m = coarse_demo_model
+    ens = ensemble_points(m, [-20.0, -10.0], [-20.0, -15.0], members=300, seed=2)
+    w = ens["member_weight"].values
+    lo, hi = DEFAULT_WEIGHT_RANGE
+    assert w.min() >= lo and w.max() <= hi and np.all(w.std(axis=0) > 0.2)
+    assert np.all(ens["shmax_std_deg"].values > 0)
+    assert ens.attrs["distributions_source"].startswith("default")
+    assert set(json.loads(ens.attrs["distributions"])) == set(m.groups)
+
+
+def test_model_ensemble_with_nothing_varied_is_refused(coarse_demo_model):
+    from stressmap.analyses.ensemble import ensemble_points
+
+    fixed = {"ridge": {"distribution": "uniform", "low": 1.0, "high": 1.0}}
+    with pytest.raises(InputError) as err:
+        ensemble_points(coarse_demo_model, [-20.0], [-20.0], members=10, distributions=fixed)
+    assert err.value.problems[0]["field"] == "distributions"

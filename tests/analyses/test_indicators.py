@@ -12,13 +12,15 @@ from numpy.testing import assert_allclose
 
 from stressmap.analyses import indicators
 from stressmap.errors import IndicatorFileError, InputError
+from stressmap.formats.indicators import indicators_from_csv_text, indicators_from_geojson
+from stressmap.io.indicators import read_indicators
 
 DATA = Path(__file__).parents[1] / "data"
 
 
 @pytest.fixture(scope="module")
 def small():
-    return indicators.read_indicators(DATA / "indicators_small.csv")
+    return read_indicators(DATA / "indicators_small.csv")
 
 
 def test_every_type_converted(small):
@@ -81,7 +83,7 @@ def test_geometry_lon_wrap_extras_and_index(small):
 
 def test_broken_file_reports_every_bad_row_and_column():
     with pytest.raises(IndicatorFileError) as err:
-        indicators.read_indicators(DATA / "indicators_broken.csv")
+        read_indicators(DATA / "indicators_broken.csv")
     got = {(p.get("row"), p.get("field")) for p in err.value.problems}
     expected = {
         (2, "lon"), (3, "lat"), (4, "type"), (5, "azimuth_deg"), (6, "dip_deg"), (7, "sigma_deg"),
@@ -96,7 +98,7 @@ def test_broken_file_reports_every_bad_row_and_column():
 
 
 def test_skip_bad_skips_but_reports():
-    gdf = indicators.read_indicators(DATA / "indicators_broken.csv", skip_bad=True)
+    gdf = read_indicators(DATA / "indicators_broken.csv", skip_bad=True)
     assert gdf.index.tolist() == [1, 11]
     skipped = {(p["row"], p["field"]) for p in gdf.attrs["skipped"]}
     assert len(skipped) == 10 and (2, "lon") in skipped
@@ -104,15 +106,15 @@ def test_skip_bad_skips_but_reports():
 
 def test_missing_required_column():
     with pytest.raises(IndicatorFileError) as err:
-        indicators.indicators_from_csv_text("id,lon,lat,azimuth_deg\nA,1,2,3\n")
+        indicators_from_csv_text("id,lon,lat,azimuth_deg\nA,1,2,3\n")
     assert err.value.problems[0]["field"] == "type"
     with pytest.raises(IndicatorFileError):
-        indicators.indicators_from_csv_text("id,lon,lat,type\nA,1,2,breakout\n")
+        indicators_from_csv_text("id,lon,lat,type\nA,1,2,breakout\n")
 
 
 def test_empty_table_is_an_error():
     with pytest.raises(IndicatorFileError):
-        indicators.indicators_from_csv_text("id,lon,lat,type,azimuth_deg\n")
+        indicators_from_csv_text("id,lon,lat,type,azimuth_deg\n")
 
 
 def test_geojson_and_geopackage_match_csv(small, tmp_path):
@@ -125,14 +127,14 @@ def test_geojson_and_geopackage_match_csv(small, tmp_path):
     fc = indicators_geojson(small.reset_index(drop=True), columns=cols)
     path = tmp_path / "ind.geojson"
     path.write_text(json.dumps(fc, allow_nan=False))
-    from_json = indicators.read_indicators(path)
+    from_json = read_indicators(path)
     assert_allclose(from_json["shmax_azimuth_deg"], small["shmax_azimuth_deg"], equal_nan=True)
     assert from_json["id"].tolist() == small["id"].tolist()
 
     gpkg = tmp_path / "ind.gpkg"
     raw = small[cols + ["geometry"]].copy()
     gpd.GeoDataFrame(raw, geometry="geometry", crs="EPSG:4326").to_file(gpkg, driver="GPKG")
-    from_gpkg = indicators.read_indicators(gpkg)
+    from_gpkg = read_indicators(gpkg)
     assert_allclose(from_gpkg["shmax_azimuth_deg"], small["shmax_azimuth_deg"], equal_nan=True)
     assert_allclose(from_gpkg["lon"], small["lon"])
 
@@ -145,20 +147,20 @@ def test_geojson_bad_geometry_reported_by_row():
          "properties": {"id": "b", "type": "breakout", "azimuth_deg": 5}},
     ]}
     with pytest.raises(IndicatorFileError) as err:
-        indicators.indicators_from_geojson(fc)
+        indicators_from_geojson(fc)
     assert [(p["row"], p["field"]) for p in err.value.problems] == [(2, "geometry")]
-    assert len(indicators.indicators_from_geojson(fc, skip_bad=True)) == 1
+    assert len(indicators_from_geojson(fc, skip_bad=True)) == 1
     with pytest.raises(IndicatorFileError):
-        indicators.indicators_from_geojson({"type": "Feature"})
+        indicators_from_geojson({"type": "Feature"})
 
 
 def test_unsupported_and_missing_files(tmp_path):
     with pytest.raises(IndicatorFileError):
-        indicators.read_indicators(tmp_path / "nope.csv")
+        read_indicators(tmp_path / "nope.csv")
     p = tmp_path / "x.xlsx"
     p.write_text("x")
     with pytest.raises(IndicatorFileError):
-        indicators.read_indicators(p)
+        read_indicators(p)
 
 
 def test_summarise_matches_axial_statistics(small):

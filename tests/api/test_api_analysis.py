@@ -61,7 +61,7 @@ def indicator_text(coarse_demo_model):
 
 def test_calibrate_matches_the_library(svc, indicator_text, coarse_demo_model):
     from stressmap.analyses.calibrate import calibrate
-    from stressmap.analyses.indicators import indicators_from_csv_text
+    from stressmap.formats.indicators import indicators_from_csv_text
 
     app, client, model_id = svc
     body = {"indicators_csv": indicator_text, "reference": "ridge", "n_bootstrap": 30,

@@ -139,14 +139,14 @@ def test_smooth_geojson_and_netcdf(client, demo_fc):
 def test_smooth_matches_core(client):
     import pandas as pd
 
-    from stressmap.analyses.indicators import indicators_from_csv_text
+    from stressmap.formats.indicators import indicators_from_csv_text
     from stressmap.analyses.observed import observed_grid
 
     body = {"indicators_csv": SMALL_CSV, "bbox": [9, 44, 15, 47], "radius_km": 300, "min_count": 2,
-            "max_dispersion_deg": 60}
+            "max_halfwidth_deg": 60}
     fc = client.post(f"{API}/indicators/smooth", json=body).json
     ds = observed_grid(indicators_from_csv_text(SMALL_CSV), bbox=(9, 44, 15, 47), radius_km=300,
-                       min_count=2, max_dispersion_deg=60)
+                       min_count=2, max_halfwidth_deg=60)
     assert len(fc["features"]) == int((ds["count"].values > 0).sum())
     got = pd.Series([f["properties"]["count"] for f in fc["features"]])
     assert got.sum() == ds["count"].values.sum()
@@ -158,7 +158,8 @@ def test_smooth_matches_core(client):
     ({"radius_km": -1}, "radius_km"),
     ({"radius_km": None}, "radius_km"),
     ({"min_count": 1.5}, "min_count"),
-    ({"max_dispersion_deg": "a"}, "max_dispersion_deg"),
+    ({"max_halfwidth_deg": "a"}, "max_halfwidth_deg"),
+    ({"max_dispersion_deg": 25}, "max_dispersion_deg"),     # renamed: refused by name
     ({"spacing_km": 0.001}, "spacing_km"),
     ({"format": "png"}, "format"),
 ])

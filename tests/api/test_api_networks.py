@@ -56,7 +56,8 @@ def test_network_lifecycle(client):
     done = client.post(net["links"]["predict"], json=body)
     assert done.status_code == 200 and done.mimetype == "application/geo+json"
     props = [f["properties"] for f in done.json["features"]]
-    assert [p["plate"] for p in props] == ["South", "North", ""]
+    # GeoJSON says "no plate" with null, like every value outside the plates (README)
+    assert [p["plate"] for p in props] == ["South", "North", None]
     assert [p["inside"] for p in props] == [True, True, False]
     assert done.json["model_id"] == net["id"] and done.json["caution"]
     grid = client.post(net["links"]["predict"], json={"region": {"bbox": [0, 0, 10, 10]},

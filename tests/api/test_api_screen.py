@@ -75,7 +75,7 @@ def test_ensemble_spread_from_the_model(client, model_id):
     assert unc["ensemble_azimuth_std_deg"] > 0.0
     assert abs(sum(unc["regime_probability"].values()) - 1.0) < 1e-12
     p = doc["planes"][0]
-    assert p["pore_pressure_margin_p05_mpa"] <= p["pore_pressure_margin_p95_mpa"]
+    assert p["margin_band_low_mpa"] <= p["margin_median_mpa"] <= p["margin_band_high_mpa"]
 
 
 def test_geojson_reads_back_with_geopandas(client):
@@ -157,3 +157,15 @@ def test_indicator_derived_spread_against_the_model(client, model_id, coarse_dem
     info = resp.json["uncertainty"]["indicator_spread"]
     assert_allclose(info["sigma_deg"], 10.0, atol=1e-6)  # RMS of +-10 deg misfits
     assert "RMS misfit of the model" in info["source"]
+
+
+def test_margin_curves_picture_over_http(client):
+    body = {"site": [-15.0, -20.0], "depth_km": 3.0, "regime": "normal", "shmax_azimuth_deg": 40,
+            "planes": ["040/60", "130/80"], "uncertainty": {"friction_range": [0.5, 0.8],
+                                                            "samples": 100},
+            "format": "png", "picture": "margins"}
+    r = client.post("/api/v1/screen", json=body)
+    assert r.status_code == 200 and r.data[:8] == b"\x89PNG\r\n\x1a\n"   # PNG spec, section 5.2
+    body.pop("uncertainty")        # nothing sampled: a clear problem, not a server error
+    r = client.post("/api/v1/screen", json=body)
+    assert r.status_code == 422 and r.json["errors"][0]["field"] == "uncertainty.samples"

@@ -1,6 +1,7 @@
 """POST /api/v1/wells/{analysis}: well screening over HTTP, read back with independent readers."""
 
 import io
+import json
 
 import numpy as np
 import pandas as pd
@@ -77,3 +78,16 @@ def test_breakout_constraint_sets_shmax(client):
     doc = client.post(f"{API}/wells/breakout", json=body).get_json()
     assert doc["site"]["shmax_mpa"] == pytest.approx(doc["shmax_from_breakout_mpa"])
     assert "breakout" in doc["site"]["sources"]["shmax_mpa"]
+
+
+def test_stress_path_takes_geojson_fault_traces(client):
+    # faults arrive as GeoJSON over HTTP and are read at the edge before the core sees them
+    faults = {"type": "FeatureCollection", "features": [
+        {"type": "Feature", "properties": {"name": "T", "dip_deg": 60, "dip_direction_deg": "E"},
+         "geometry": {"type": "LineString", "coordinates": [[5.0, 50.0], [5.0, 50.05]]}}]}
+    r = client.post("/api/v1/wells/stress-path", json={**SITE, "faults": faults})
+    assert r.status_code == 200, r.json
+    assert "T" in json.dumps(r.json)
+    faults["features"][0]["properties"]["dip_deg"] = 120
+    r = client.post("/api/v1/wells/stress-path", json={**SITE, "faults": faults})
+    assert r.status_code == 422 and r.json["errors"][0]["field"] == "faults.dip_deg"

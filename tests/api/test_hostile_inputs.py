@@ -252,7 +252,7 @@ def _read_plate_file(path: Path):
 
 
 def _read_indicator_file(path: Path):
-    from stressmap.analyses.indicators import read_indicators
+    from stressmap.io.indicators import read_indicators
 
     return read_indicators(path)
 

@@ -125,6 +125,20 @@ def test_ensemble_bad_output_and_distribution(coarse_demo_dir, points_csv, tmp_p
     assert "distributions.collision.distribution" in err
 
 
+def test_ensemble_without_vary_says_which_defaults_it_varied(coarse_demo_dir, tmp_path, capsys):
+    # The README example `ensemble ... --members 2000 -o spread.png` gives no distribution: the
+    # members used to be identical (spread 0). Now the documented defaults vary and it says so.
+    nc = tmp_path / "ens.nc"
+    assert main(["ensemble", str(coarse_demo_dir), "--bbox=-30,-30,-5,-5", "--spacing-km", "500",
+                 "--members", "40", "-o", str(nc)]) == 0
+    out = capsys.readouterr().out
+    assert "note: distributions: default" in out and "0.5 to 1.5" in out
+    with xr.open_dataset(nc) as ds:
+        inside = ds["inside"].values.astype(bool)
+        assert np.nanmax(ds["shmax_std_deg"].values[inside]) > 0
+        assert json.loads(ds.attrs["distributions"])
+
+
 def test_ensemble_regime_probability_map(coarse_demo_dir, tmp_path, capsys):
     """--regime-png draws P(normal), P(strike-slip), P(reverse) from the same members as the
     netCDF; decoded with Pillow, each panel's cells carry the colour of their probability."""

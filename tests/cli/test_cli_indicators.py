@@ -13,7 +13,8 @@ from numpy.testing import assert_allclose
 
 from stressmap.cli import main
 from stressmap.constants import CAUTION
-from stressmap.analyses.indicators import CONVERT_COLUMNS, read_indicators
+from stressmap.analyses.indicators import CONVERT_COLUMNS
+from stressmap.io.indicators import read_indicators
 
 DATA = Path(__file__).parents[1] / "data"
 SMALL = DATA / "indicators_small.csv"
@@ -141,3 +142,22 @@ def test_demo_data_is_labelled_fictional_and_complete():
     assert (gdf["source"].str.contains("fictional")).all()
     assert (gdf["note"].fillna("").str.contains("anomaly")).sum() >= 20
     assert np.isfinite(gdf["shmax_azimuth_deg"]).mean() > 0.95
+
+
+def test_demo_indicator_ids_come_from_our_own_type_names():
+    # Ids are MER-<our type name>-NNN (anomalies MER-local-anomaly-NNN, MER-random-orientation-NNN),
+    # not two-letter type codes.
+    import pandas as pd
+
+    from stressmap.analyses.indicators import TYPES
+    from stressmap.data.make_demo_indicators import demo_id
+
+    table = pd.read_csv(Path(__file__).parents[2] / "stressmap" / "data" / "demo_indicators.csv",
+                        comment="#", dtype=str, keep_default_na=False)
+    labels = table["id"].str.extract(r"^MER-(.+)-(\d{3})$")
+    assert labels.notna().all().all()
+    anomaly = table["note"].str.startswith("deliberate local anomaly")
+    assert (labels[0][~anomaly] == table["type"][~anomaly].str.replace("_", "-")).all()
+    assert set(labels[0][anomaly]) == {"local-anomaly", "random-orientation"}
+    assert set(t.replace("_", "-") for t in TYPES) <= set(labels[0])
+    assert table["id"].is_unique and demo_id("breakout", 1) == "MER-breakout-001"

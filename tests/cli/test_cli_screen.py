@@ -110,12 +110,12 @@ def test_sampling_reports_percentiles_and_probability(capsys):
     unc = doc["uncertainty"]
     assert unc["samples"] == 400 and "sigma 10 deg (user-given)" in unc["orientation_source"]
     for p in doc["planes"]:
-        assert p["pore_pressure_margin_p05_mpa"] <= p["pore_pressure_margin_p50_mpa"] <= \
-            p["pore_pressure_margin_p95_mpa"]
-        assert 0.0 <= p["probability_margin_below_threshold"] <= 1.0
+        assert p["margin_band_low_mpa"] <= p["margin_median_mpa"] <= p["margin_band_high_mpa"]
+        assert 0.0 <= p["reactivation_share"] <= 1.0
     # the near-critical plane is far more likely below 2 MPa than the steep cross plane
-    assert doc["planes"][0]["probability_margin_below_threshold"] > 0.3
-    assert doc["planes"][1]["probability_margin_below_threshold"] < 0.05
+    assert doc["planes"][0]["reactivation_share"] > 0.3
+    assert doc["planes"][1]["reactivation_share"] < 0.05
+    assert unc["margin_band_percentiles"] == [10.0, 90.0]
 
 
 @pytest.mark.parametrize(
@@ -165,6 +165,22 @@ def test_site_outside_the_model_plate(capsys, coarse_demo_dir):
     assert main(["screen", "--site=150,60", "--depth-km", "3", "--model",
                  str(coarse_demo_dir)]) == 2
     assert "outside" in capsys.readouterr().err
+
+
+def test_density_profile_with_the_optional_gradient_left_empty(capsys, tmp_path):
+    # README: `gradient_kg_m3_per_km` is optional per layer; an empty cell means no gradient
+    # (it was refused as "not a number").
+    prof = tmp_path / "layers.csv"
+    prof.write_text("top_km,density_kg_m3,gradient_kg_m3_per_km\n0,2200,\n1,2400,100\n")
+    doc = run_json(capsys, *ORIENT, "--density-profile", str(prof), "--plane", "040/60")
+    # Sv = g (2200 * 1 km + 2400 * 2 km + 100 * 2^2 / 2) -- the analytic integral of the layers
+    assert_allclose(doc["sv_mpa"], 9.81 * (2200 * 1e3 + 2400 * 2e3 + 100 * 4 / 2 * 1e3) / 1e6,
+                    rtol=1e-12)
+    assert doc["density_profile"]["gradient_kg_m3_per_km"][0] == 0.0
+    bad = tmp_path / "bad.csv"
+    bad.write_text("top_km,density_kg_m3,gradient_kg_m3_per_km\n0,2200,x\n")
+    assert main([*BASE, *ORIENT, "--density-profile", str(bad)]) == 2
+    assert "gradient_kg_m3_per_km" in capsys.readouterr().err
 
 
 def test_hints_name_flags_not_request_fields(capsys, coarse_demo_dir):

@@ -91,3 +91,13 @@ def test_netcdf_reads_back_with_xarray(tmp_path, grid_ds):
         assert back.attrs["caution"] == CAUTION
         assert back["inside"].dtype == np.int8 and back["inside"].attrs["flag_meanings"] == "false true"
         assert_allclose(back["shmax_azimuth_deg"].values, grid_ds["shmax_azimuth_deg"].values)
+
+
+def test_geojson_outside_the_plate_gives_null_regime(point_ds):
+    # README: points outside the plate have `inside: false` and null values (JSON null, RFC 8259),
+    # the regime included (it was "").
+    fc = export.points_geojson(point_ds)
+    outside = fc["features"][2]["properties"]
+    assert outside["inside"] is False
+    assert outside["regime"] is None and outside["shmax_azimuth_deg"] is None
+    assert fc["features"][0]["properties"]["regime"] == "reverse"

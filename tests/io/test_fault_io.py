@@ -99,3 +99,27 @@ def test_demo_faults_are_fictional_and_lie_on_the_demo_plate():
     pts += list(zip(parsed["planes"]["lon"], parsed["planes"]["lat"]))
     pts.append((fc["site"]["lon"], fc["site"]["lat"]))
     assert shapely.contains_xy(ring, *np.array(pts).T).all()
+
+
+def test_shapefile_truncated_column_names_are_read(tmp_path):
+    # A shapefile's dBASE table keeps at most 10 characters of a field name (dBASE III format,
+    # common practice): dip_direction_deg comes back as dip_direct. It used to be ignored, and
+    # the demo's Ashvale fault flipped from dipping NE (45) to 225 with only a note.
+    import warnings
+    from pathlib import Path
+
+    import geopandas as gpd
+
+    demo = Path(__file__).parents[2] / "stressmap" / "data" / "demo_faults.geojson"
+    shp = tmp_path / "demo_faults.shp"
+    with warnings.catch_warnings():  # mixed-type column read as text; the driver truncates names
+        warnings.simplefilter("ignore")
+        frame = gpd.read_file(demo)
+        frame = frame[frame.geom_type == "LineString"]  # a shapefile holds one geometry type
+        frame["dip_direction_deg"] = frame["dip_direction_deg"].astype(str)
+        frame.to_file(shp)
+    assert "dip_direct" in gpd.read_file(shp).columns         # the format did truncate it
+    parsed, _ = read_fault_file(shp)
+    reference = faults_from_geojson(json.loads(demo.read_text(encoding="utf-8")))
+    assert parsed["traces"]["dip_direction_deg"] == reference["traces"]["dip_direction_deg"]
+    assert parsed["traces"]["dip_direction_deg"][0] == 45.0   # Ashvale: "NE"

@@ -11,7 +11,8 @@ from numpy.testing import assert_allclose
 from stressmap import CAUTION
 from stressmap.plot import screening as ps
 from stressmap.analyses import screening as sc
-from stressmap.analyses.sitescreen import parse_request, screen
+from stressmap.analyses.sitescreen import screen
+from stressmap.formats.screening import parse_request_json as parse_request
 
 
 @pytest.fixture(scope="module")
@@ -93,7 +94,7 @@ def test_map_colours_traces_by_margin_and_scale_bar_is_true(result):
     (lc,) = _by_gid(ax, "fault-traces")
     seg = result.planes["kind"] == "trace segment"
     assert_allclose(lc.get_array(), result.planes["pore_pressure_margin_mpa"][seg])
-    assert lc.get_cmap().name == "cividis"
+    assert lc.get_cmap().name == "stressmap-margin"   # our own ember scale
     (bar,) = _by_gid(ax, "scale-bar")
     (x0, x1), (y0, _) = bar.get_data()
     label = [t.get_text() for t in ax.texts if t.get_text().endswith(" km")][0]
@@ -117,6 +118,55 @@ def test_png_has_the_caution_footer(result, fn):
     assert png[:8] == b"\x89PNG\r\n\x1a\n"
     img = mpimg.imread(io.BytesIO(png), format="png")
     assert img.shape[0] > 400 and img.shape[1] > 600
+
+
+# -- our own presentation of the probabilistic screening and of the stress polygon ----------
+
+def test_margin_curves_picture_has_a_curve_per_fault(result):
+    from stressmap.analyses.sitescreen import fault_margins
+    from stressmap.plot.margins import MAX_CURVES, margin_curves_figure, margin_curves_png
+
+    fig = margin_curves_figure(result)
+    ax = fig.axes[0]
+    curves = [a for a in ax.get_lines() if (a.get_gid() or "").startswith("margin-curve-")]
+    fm = fault_margins(result)
+    assert len(curves) == min(fm["name"].size, MAX_CURVES) == 20      # 42 faults and planes
+    assert any("22 more" in t.get_text() for t in fig.axes[1].texts)
+    # each curve is the empirical distribution of its fault's least margin (numpy sort)
+    x, y = curves[0].get_data()
+    assert np.allclose(x, np.sort(fm["margin_mpa"][:, 0]))
+    assert np.isclose(y[-1], 1.0) and np.all(np.diff(y) > 0)
+    assert any(t.get_gid() == "caution-footer" and CAUTION in t.get_text().replace("\n", " ")
+               for t in fig.texts)
+    assert margin_curves_png(result)[:8] == b"\x89PNG\r\n\x1a\n"   # PNG spec 5.2
+
+
+def test_stress_polygon_names_its_fields_in_words():
+    from stressmap.analyses import screening as sc
+    from stressmap.plot.screening import polygon_figure
+
+    req = parse_request({"site": [-15.0, -20.0], "depth_km": 3.0, "regime": "normal",
+                         "shmax_azimuth_deg": 40.0, "planes": ["040/60"]})
+    res = screen(req)
+    ax = polygon_figure(res).axes[0]
+    texts = [t.get_text() for t in ax.texts]
+    assert not {"NF", "SS", "RF"} & set(texts)
+    for regime in ("normal", "strike-slip", "reverse"):
+        assert any(t.startswith(f"{regime} faulting") for t in texts)
+    fields = {p.get_gid(): p for p in ax.patches if (p.get_gid() or "").startswith("regime-field")}
+    assert set(fields) == {"regime-field-normal", "regime-field-strike-slip",
+                           "regime-field-reverse"}
+    # the three fields tile the polygon (shoelace areas; the polygon from the core)
+    def area(v):
+        x, y = np.asarray(v).T
+        return 0.5 * abs(np.dot(x, np.roll(y, 1)) - np.dot(y, np.roll(x, 1)))
+    s = res.site
+    parts = sc.regime_fields(s["sv_mpa"], s["pp_mpa"], s["friction"])
+    assert np.isclose(sum(area(v) for v in parts.values()), area(s["stress_polygon_mpa"]))
+    # each field's centroid is in its own regime (Anderson: order of SHmax, Shmin and Sv)
+    for regime, tri in parts.items():
+        x, y = tri.mean(axis=0)
+        assert sc.REGIMES[int(sc.regime_from_magnitudes(y, x, s["sv_mpa"]))] == regime
 
 
 # --- pictures a report can use: labels that do not overlap, names and ranks on the map ---------
