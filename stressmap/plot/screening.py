@@ -267,6 +267,13 @@ def _fault_window(site, pts) -> MapWindow:
     return MapWindow(cx - half / coslat, cx + half / coslat, cy - half, cy + half)
 
 
+#: Colour of the site's SHmax bar: a blue that no colour of the ember margin scale comes near.
+SHMAX_BAR = "#1f5fa8"
+
+#: Colour of the thin outline drawn under fault traces (keeps light margin colours visible).
+TRACE_CASING = "#5a5550"
+
+
 def _draw_traces(ax, result, is_seg, norm):
     """Trace segments coloured by margin; returns (collection or None, [(lon, lat)...])."""
     from matplotlib.collections import LineCollection
@@ -275,7 +282,11 @@ def _draw_traces(ax, result, is_seg, norm):
         return None, []
     segs = result.plane_geometry[is_seg].copy()
     segs[..., 0] = _wrap_lon(segs[..., 0], result.site["lon"])
-    lc = LineCollection(segs, cmap=_margin_cmap(), norm=norm, linewidths=2.6, gid="fault-traces")
+    # a dark casing under each trace: the palest margin colour would vanish into the background
+    ax.add_collection(LineCollection(segs, colors=TRACE_CASING, linewidths=4.0, zorder=1.9,
+                                     capstyle="round", gid="fault-trace-casing"))
+    lc = LineCollection(segs, cmap=_margin_cmap(), norm=norm, linewidths=2.6, zorder=2,
+                        capstyle="round", gid="fault-traces")
     lc.set_array(result.planes["pore_pressure_margin_mpa"][is_seg])
     ax.add_collection(lc)
     return lc, [segs.reshape(-1, 2)]
@@ -323,7 +334,7 @@ def _draw_site(ax, s, half) -> None:
     a = math.radians(s["shmax_azimuth_deg"])
     d = 0.3 * half
     ax.plot([s["lon"] - d * math.sin(a) / coslat, s["lon"] + d * math.sin(a) / coslat],
-            [s["lat"] - d * math.cos(a), s["lat"] + d * math.cos(a)], color="#b2182b", lw=2,
+            [s["lat"] - d * math.cos(a), s["lat"] + d * math.cos(a)], color=SHMAX_BAR, lw=2,
             zorder=5, gid="shmax-direction", label=f"SHmax {s['shmax_azimuth_deg']:.0f}\u00b0")
 
 

@@ -290,3 +290,28 @@ def test_fault_map_labels_keep_the_site_and_the_squares_clear(logged_at_site):
     least = float(np.min(res.planes["pore_pressure_margin_mpa"][located]))
     assert squares.get_array()[-1] == pytest.approx(least)
     assert squares.get_zorder() > site.get_zorder()
+
+
+def test_fault_map_palest_trace_and_shmax_bar_stand_out(logged_at_site):
+    # every trace has a casing darker than the axes background, so the largest margin (the
+    # palest colour of the scale) is still seen; the SHmax bar differs in hue from every margin
+    from matplotlib.colors import to_rgb, rgb_to_hsv
+
+    fig = ps.fault_map_figure(logged_at_site)
+    ax = fig.axes[0]
+    (casing,) = _by_gid(ax, "fault-trace-casing")
+    (traces,) = _by_gid(ax, "fault-traces")
+    assert len(casing.get_segments()) == len(traces.get_segments())
+    assert casing.get_zorder() < traces.get_zorder()
+    assert max(casing.get_linewidths()) > max(traces.get_linewidths())
+
+    def lum(c):
+        r, g, b = to_rgb(c)
+        return 0.2126 * r + 0.7152 * g + 0.0722 * b  # relative luminance weights (sRGB, ITU-R BT.709)
+
+    assert lum(ax.get_facecolor()) - lum(casing.get_edgecolor()[0]) > 0.4
+    (bar,) = _by_gid(ax, "shmax-direction")
+    bar_hue = rgb_to_hsv(to_rgb(bar.get_color()))[0]
+    cmap = traces.get_cmap()
+    hues = [rgb_to_hsv(cmap(v)[:3])[0] for v in np.linspace(0, 1, 11)]
+    assert min(min(abs(bar_hue - h), 1 - abs(bar_hue - h)) for h in hues) > 0.25
