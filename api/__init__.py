@@ -45,6 +45,7 @@ DEFAULTS: dict = {
     "READS_NEED_TOKEN": False,
     "CORS_ORIGINS": [],
     "LOAD_DEMO": False,
+    "FEATURES_FIELD_SPACING_KM": 100.0,  # node spacing of the OGC API - Features field collections
 }
 
 _REPO_CONFIG = Path(__file__).resolve().parent.parent / "config" / "service.toml"

@@ -1,7 +1,7 @@
 """Serialising prediction Datasets into HTTP responses (GeoJSON, CSV, netCDF, PNG).
 
 Every spatial response carries the caution, the model id and its build time: GeoJSON as
-top-level members, CSV as leading ``# key: value`` lines, netCDF as global attributes, PNG in the
+top-level members, CSV in ``X-Stressmap-*`` response headers (the body is a plain table), netCDF as global attributes, PNG in the
 caption. The serialisers themselves are :mod:`stressmap.formats.export` (one GeoJSON writer for the CLI,
 the Python API and the service) and :func:`stressmap.plot.maps.shmax_map`.
 """
@@ -15,6 +15,7 @@ from flask import Response, current_app
 
 from stressmap.constants import CAUTION
 from stressmap.formats import export
+from stressmap.formats.table import metadata_headers
 from stressmap.model import plate_outline
 from stressmap.plot.maps import shmax_map
 
@@ -64,13 +65,14 @@ def render(ds, fmt: str, meta: dict, *, grid: bool, model=None, extra_properties
 
     headers = {}
     if fmt == "geojson":
-        doc = (export.grid_geojson(ds, meta=meta) if grid
-               else export.points_geojson(ds, extra_properties=extra_properties, meta=meta))
+        doc = (export.grid_geojson(ds, meta=meta, name=stem) if grid  # name: the GIS layer name
+               else export.points_geojson(ds, extra_properties=extra_properties, meta=meta,
+                                          name=stem))
         body = current_app.json.dumps(doc)
     elif fmt == "csv":
-        flat = _flat_meta(meta)
-        body = (export.grid_csv(ds, meta=flat) if grid
-                else export.points_csv(ds, meta=flat, extra_properties=extra_properties))
+        body = (export.grid_csv(ds) if grid
+                else export.points_csv(ds, extra_properties=extra_properties))
+        headers.update(metadata_headers(meta))  # a CSV body is a plain table: metadata in headers
         headers["Content-Disposition"] = f'attachment; filename="{stem}.csv"'
     elif fmt == "netcdf":
         body = export.netcdf_bytes(ds, _flat_meta(meta))

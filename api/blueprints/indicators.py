@@ -41,6 +41,7 @@ from stressmap.formats.indicators import (
     indicators_geojson,
 )
 from stressmap.formats.observed import observed_geojson, observed_netcdf_bytes
+from stressmap.formats.table import metadata_headers
 from stressmap.plot.indicators import comparison_map_png, rose_png
 
 __all__ = ["bp", "COMPARE_FORMATS", "SMOOTH_FORMATS"]
@@ -164,11 +165,11 @@ def compare_model(model_id: str):
     result = run_limited(_run_compare, model, gdf, weights, fmt, picture, meta)
     if fmt == "png":
         return Response(result, mimetype="image/png")
-    if fmt == "csv":
-        lines = "".join(f"# skipped: row {p.get('row')}, {p.get('field')}: {p['message']}\n"
-                        for p in skipped)
-        return Response(lines + result, mimetype="text/csv",
-                        headers={"Content-Disposition": f'attachment; filename="compare-{model_id[:8]}.csv"'})
+    if fmt == "csv":  # a plain table: the caution and the skipped rows travel in headers
+        headers = metadata_headers(meta | {"skipped": [
+            f"row {p.get('row')}, {p.get('field')}: {p['message']}" for p in skipped]})
+        headers["Content-Disposition"] = f'attachment; filename="compare-{model_id[:8]}.csv"'
+        return Response(result, mimetype="text/csv", headers=headers)
     result["skipped"] = skipped
     if fmt == "geojson":
         return Response(json.dumps(to_jsonable(result), allow_nan=False), mimetype="application/geo+json")

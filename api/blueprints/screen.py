@@ -19,7 +19,15 @@ from stressmap.analyses.sitescreen import screen as run_screening
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
 from stressmap.formats.screening import parse_request_json as parse_request
-from stressmap.formats.screening import result_csv, result_geojson, result_json
+from stressmap.formats.screening import (
+    LAYERS,
+    result_geojson,
+    result_json,
+    screen_csv,
+    screen_layers,
+    screen_meta,
+)
+from stressmap.formats.table import metadata_headers
 from stressmap.plot import margins as plot_margins
 from stressmap.plot import screening as plot_screening
 
@@ -44,15 +52,17 @@ def _choice(value, options, field):
     return value.lower()
 
 
-def _run(req, model, model_info, fmt, picture):
+def _run(req, model, model_info, fmt, picture, layer=None):
 
     result = run_screening(req, model, model_info)
     if fmt == "json":
         return "json", result_json(result)
     if fmt == "geojson":
+        if layer:  # one geometry kind per answer, for GIS clients
+            return "geojson", screen_layers(result)[layer]
         return "geojson", result_geojson(result)
     if fmt == "csv":
-        return "csv", result_csv(result)
+        return "csv", (screen_csv(result), metadata_headers(screen_meta(result)))
 
     pictures = plot_margins if picture == "margins" else plot_screening
     return "png", getattr(pictures, PICTURES[picture])(result)
@@ -69,6 +79,10 @@ def screen():
     fmt = _choice(body.get("format", request.args.get("format")), FORMATS, "format")
     picture = _choice(body.get("picture", request.args.get("picture")), tuple(PICTURES),
                       "picture")
+    layer = body.get("layer", request.args.get("layer"))
+    if layer is not None:
+        layer = _choice(layer, LAYERS, "layer")
+        body = {k: v for k, v in body.items() if k != "layer"}
     req = parse_request(body)
     n_planes = req.plane_strike_deg.size + (
         sum(len(a) for a in req.traces["lines"]) if req.traces else 0)
@@ -93,7 +107,7 @@ def screen():
         meta = store.meta(model_id)
         model_info = {"id": model_id, "name": meta.get("name"),
                       "build_time": meta.get("build_time")}
-    kind, payload = run_limited(_run, req, model, model_info, fmt, picture)
+    kind, payload = run_limited(_run, req, model, model_info, fmt, picture, layer)
     if kind == "json":
         return jsonify(payload)
     if kind == "geojson":
@@ -101,8 +115,9 @@ def screen():
                         content_type="application/geo+json")
     stem = "stressmap-screen"
     if kind == "csv":
-        return Response(payload, status=200, content_type="text/csv; charset=utf-8",
-                        headers={"Content-Disposition": f'attachment; filename="{stem}.csv"'})
+        text, headers = payload
+        headers["Content-Disposition"] = f'attachment; filename="{stem}.csv"'
+        return Response(text, status=200, content_type="text/csv; charset=utf-8", headers=headers)
 
     return Response(payload, status=200, content_type="image/png",
                     headers={"Content-Disposition": f'inline; filename="{stem}-{picture}.png"',

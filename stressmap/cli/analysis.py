@@ -16,9 +16,10 @@ from stressmap.analyses.ensemble import (
 from stressmap.cli._progress import progress_bar
 from stressmap.cli.model import parse_bbox
 from stressmap.errors import InputError, problem
-from stressmap.formats import export
+from stressmap.io.files import write_atomic
 from stressmap.io.indicators import read_indicators
 from stressmap.io.networkdir import read_any_model
+from stressmap.io.outputs import output_kind, write_points_output
 from stressmap.io.points import read_points
 from stressmap.model import plate_outline
 from stressmap.plot.ensemble import ensemble_png
@@ -222,10 +223,7 @@ def _cmd_calibrate(args) -> int:
 def _cmd_ensemble(args) -> int:
 
     out = Path(args.output)
-    fmt = out.suffix.lower().lstrip(".")
-    if fmt not in ("nc", "geojson", "json", "png"):
-        raise InputError(f"unsupported output type .{fmt}: use .nc, .geojson or .png",
-                         [problem("output must end in .nc, .geojson or .png", field="-o")])
+    fmt = output_kind(out, (".nc", ".geojson", ".json", ".csv", ".gpkg", ".png"))
     if args.members < 1:
         raise InputError("--members must be at least 1", [problem(f"got {args.members}",
                                                                   field="--members")])
@@ -264,17 +262,12 @@ def _cmd_ensemble(args) -> int:
     caption = (f"Model {meta['model_name']} built {meta['build_time']}; {args.members} members, "
                f"seed {seed}")
     if args.regime_png:
-        Path(args.regime_png).write_bytes(
-            ensemble_regime_png(ds, plate_outline(model), caption=caption))
-    if fmt == "nc":
-        out.write_bytes(export.netcdf_bytes(ds, meta))
-    elif fmt == "png":
-        out.write_bytes(ensemble_png(ds, plate_outline(model), caption=caption))
+        write_atomic(args.regime_png, ensemble_regime_png(ds, plate_outline(model), caption=caption))
+    if fmt == "png":
+        write_atomic(out, ensemble_png(ds, plate_outline(model), caption=caption))
     else:
-        flat = flatten_percentiles(ds)
-        doc = (export.points_geojson(flat, props, meta) if args.points
-               else export.grid_geojson(flat, meta))
-        out.write_text(json.dumps(doc, allow_nan=False), encoding="utf-8")
+        write_points_output(out, ds, meta, props, grid=not args.points,
+                            flat=flatten_percentiles(ds))
     n_in = int(ds["inside"].values.astype(bool).sum())
     where = (f"{ds.sizes['point']} points" if "point" in ds.dims
              else f"a {ds.sizes['lat']} x {ds.sizes['lon']} grid")
@@ -335,7 +328,7 @@ def register(sub) -> None:
     q.add_argument("--spacing-km", type=float, metavar="K", help="grid spacing in km (with --bbox)")
     q.add_argument("--members", type=int, required=True, metavar="N", help="ensemble members")
     q.add_argument("-o", "--output", required=True, metavar="OUT",
-                   help="output file: .nc (CF netCDF), .geojson or .png")
+                   help="output file: .nc (CF netCDF), .geojson, .csv, .gpkg or .png")
     q.add_argument("--regime-png", metavar="FILE",
                    help="also draw the probability of each faulting regime as a PNG map")
     q.add_argument("--vary", action="append", metavar="GROUP[.PARAM]=KIND:A:B",

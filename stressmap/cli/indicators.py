@@ -33,6 +33,7 @@ from stressmap.cli.model import parse_bbox, parse_weights
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
 from stressmap.formats.observed import observed_geojson, observed_netcdf_bytes
+from stressmap.io.files import write_atomic
 from stressmap.io.indicators import read_indicators, write_indicators
 from stressmap.io.networkdir import read_any_model
 from stressmap.model.network_predict import plate_at
@@ -62,8 +63,8 @@ def _output_columns(gdf, leading):
 def _cmd_convert(args) -> int:
 
     out = Path(args.output)
-    if out.suffix.lower() not in (".csv", ".geojson", ".json"):
-        raise InputError("output must end in .csv or .geojson",
+    if out.suffix.lower() not in (".csv", ".geojson", ".json", ".gpkg"):
+        raise InputError("output must end in .csv, .geojson or .gpkg",
                          [problem(f"got {out.name!r}", field="-o/--output")])
     gdf = _read(args)
     write_indicators(gdf.reset_index(drop=True), out, columns=_output_columns(gdf, CONVERT_COLUMNS))
@@ -126,10 +127,7 @@ def _cmd_smooth(args) -> int:
     else:
         raise InputError("output must end in .nc or .geojson",
                          [problem(f"got {out.name!r}", field="-o/--output")])
-    out.parent.mkdir(parents=True, exist_ok=True)
-    tmp = out.with_name(out.name + ".tmp")
-    tmp.write_bytes(data)
-    tmp.replace(out)
+    write_atomic(out, data)
     good = int((ds["status"].values == 0).sum())
     print(f"wrote {ds.sizes['lat']} x {ds.sizes['lon']} grid to {out}: {good} node(s) with a mean")
     return 0
@@ -183,8 +181,9 @@ def _cmd_compare(args) -> int:
     flat = table.reset_index(drop=True)
     write_indicators(flat, out / "indicators.geojson", columns=cols, meta=meta)
     write_indicators(flat, out / "indicators.csv", columns=cols, meta=meta)
-    (out / "summary.json").write_text(json.dumps(_nan_to_none(summary), indent=2), encoding="utf-8")
-    written = ["indicators.geojson", "indicators.csv", "summary.json"]
+    write_indicators(flat, out / "indicators.gpkg", columns=cols, meta=meta)
+    write_atomic(out / "summary.json", json.dumps(_nan_to_none(summary), indent=2))
+    written = ["indicators.geojson", "indicators.csv", "indicators.gpkg", "summary.json"]
     if not args.no_pictures:
 
         caption = f"Model {model_id}, built {summary.get('model_build_time', '')}"
@@ -216,7 +215,7 @@ def register(sub) -> None:
                                        "axes and their faulting class.")
     common(conv)
     conv.add_argument("-o", "--output", required=True, metavar="OUT",
-                      help="output file, .csv or .geojson")
+                      help="output file, .csv, .geojson or .gpkg")
     conv.set_defaults(handler=_cmd_convert)
 
     summ = isub.add_parser("summarise", help="counts and axial statistics per indicator type")

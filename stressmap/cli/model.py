@@ -8,10 +8,10 @@ from pathlib import Path
 from stressmap import CAUTION, validate
 from stressmap.cli._progress import progress_bar
 from stressmap.errors import InputError, problem
-from stressmap.formats import export
 from stressmap.io.grids import read_document_grids
 from stressmap.io.modeldir import write_model
 from stressmap.io.networkdir import is_network_dir, read_any_model
+from stressmap.io.outputs import output_kind, write_points_output
 from stressmap.io.plate_files import load_plate_files
 from stressmap.io.points import read_points
 from stressmap.model import build_model, predict_grid, predict_points
@@ -103,10 +103,7 @@ def _cmd_predict(args) -> int:
                           else (predict_points, predict_grid))
     weights = parse_weights(args.weights)
     out = Path(args.output)
-    fmt = out.suffix.lower().lstrip(".")
-    if fmt not in ("geojson", "json", "csv", "nc"):
-        raise InputError(f"unsupported output type .{fmt}: use .geojson, .csv or .nc",
-                         [problem("output must end in .geojson, .csv or .nc", field="-o")])
+    output_kind(out)  # refuse an unknown suffix before any work
     meta = {
         "caution": CAUTION,
         "model_name": model.summary.get("name", ""),
@@ -115,25 +112,14 @@ def _cmd_predict(args) -> int:
     if args.points:
         lon, lat, props = read_points(args.points)
         ds = on_points(model, lon, lat, weights=weights)
-        if fmt in ("geojson", "json"):
-            text = json.dumps(export.points_geojson(ds, props, meta), allow_nan=False)
-            out.write_text(text, encoding="utf-8")
-        elif fmt == "csv":
-            out.write_text(export.points_csv(ds, meta, props), encoding="utf-8")
-        else:
-            out.write_bytes(export.netcdf_bytes(ds, meta))
+        write_points_output(out, ds, meta, props)
         n_in = int(ds["inside"].sum())
         print(f"predicted {n_in} of {lon.size} points inside the plate{'s' if network else ''} -> {out}")
     else:
         if args.spacing_km is None:
             raise InputError("--bbox needs --spacing-km", [problem("required with --bbox", field="--spacing-km")])
         ds = on_grid(model, bbox=parse_bbox(args.bbox), spacing_km=args.spacing_km, weights=weights)
-        if fmt in ("geojson", "json"):
-            out.write_text(json.dumps(export.grid_geojson(ds, meta), allow_nan=False), encoding="utf-8")
-        elif fmt == "csv":
-            out.write_text(export.grid_csv(ds, meta), encoding="utf-8")
-        else:
-            out.write_bytes(export.grid_netcdf_bytes(ds, meta))
+        write_points_output(out, ds, meta, grid=True)
         print(f"predicted a {ds.sizes['lat']} x {ds.sizes['lon']} grid "
               f"({int(ds['inside'].sum())} nodes inside the plate{'s' if network else ''}) -> {out}")
     print(f"note: {CAUTION}")
@@ -168,5 +154,5 @@ def register(sub) -> None:
     q.add_argument("--spacing-km", type=float, metavar="K", help="grid spacing in km (with --bbox)")
     q.add_argument("--weights", metavar="GROUP=VALUE,...", help="scale load groups (default 1 each)")
     q.add_argument("-o", "--output", required=True, metavar="OUT",
-                   help="output file: .geojson, .csv or .nc (CF netCDF)")
+                   help="output file: .geojson, .csv (with .csvt/.prj/.json sidecars), .nc (CF netCDF) or .gpkg")
     q.set_defaults(handler=_cmd_predict)

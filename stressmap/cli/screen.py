@@ -21,15 +21,37 @@ from stressmap.analyses.sitescreen import (
 )
 from stressmap.cli.model import parse_weights
 from stressmap.errors import InputError, problem
-from stressmap.formats.screening import result_csv, result_geojson, result_json
+from stressmap.formats.gpkg import geojson_to_layer
+from stressmap.formats.screening import (
+    result_json,
+    screen_csv,
+    screen_csvt,
+    screen_layers,
+    screen_meta,
+)
 from stressmap.io.faults import read_fault_file
+from stressmap.io.files import write_atomic
 from stressmap.io.indicators import read_indicators
 from stressmap.io.networkdir import read_any_model
+from stressmap.io.outputs import write_csv_with_sidecars, write_geojson, write_geopackage
 from stressmap.io.tables import read_csv_table
 from stressmap.plot import screening as plot_screening
 from stressmap.plot.margins import margin_curves_png
 
-__all__ = ["register", "build_request", "read_density_profile", "parse_pair", "format_text"]
+__all__ = ["register", "build_request", "read_density_profile", "parse_pair", "format_text",
+           "layer_path"]
+
+
+def layer_path(path, layer: str) -> Path:
+    """The file of one screening layer beside ``path``: ``out.geojson`` -> ``out_traces.geojson``.
+
+    Examples
+    --------
+    >>> layer_path("run/out.geojson", "sites").as_posix()
+    'run/out_sites.geojson'
+    """
+    path = Path(path)
+    return path.with_name(f"{path.stem}_{layer}{path.suffix or '.geojson'}")
 
 
 def parse_pair(text: str | None, option: str):
@@ -243,11 +265,16 @@ def _run(args) -> int:
         raise _with_flags(exc, flags) from None
     result.notes[:] = [flag_words(n, flags) for n in result.notes]
     out = result_json(result)
+    meta = screen_meta(result)
     if args.csv:
-        Path(args.csv).write_text(result_csv(result), encoding="utf-8")
+        write_csv_with_sidecars(args.csv, screen_csv(result), screen_csvt(result), meta)
     if args.geojson:
-        Path(args.geojson).write_text(json.dumps(result_geojson(result), indent=1),
-                                      encoding="utf-8")
+        for name, layer in screen_layers(result, meta).items():
+            write_geojson(layer_path(args.geojson, name), layer)
+    if args.gpkg:
+        layers = screen_layers(result, meta)
+        write_geopackage(args.gpkg, {name: geojson_to_layer(fc) for name, fc in layers.items()
+                                     if fc["features"]}, meta)
     pictures = (("mohr_png", "mohr_png"), ("polygon_png", "polygon_png"),
                 ("map_png", "fault_map_png"))
     if any(getattr(args, opt) for opt, _ in pictures):
@@ -255,9 +282,9 @@ def _run(args) -> int:
         for opt, fn in pictures:
             target = getattr(args, opt)
             if target:
-                Path(target).write_bytes(getattr(plot_screening, fn)(result))
+                write_atomic(target, getattr(plot_screening, fn)(result))
     if args.margins_png:
-        Path(args.margins_png).write_bytes(margin_curves_png(result))
+        write_atomic(args.margins_png, margin_curves_png(result))
     if args.json:
         print(json.dumps(out, indent=1))
     else:
@@ -335,8 +362,12 @@ def register(subparsers) -> None:
                    help="report the share of samples whose margin falls below this, MPa "
                         "(default 0)")
     g = p.add_argument_group("files")
-    g.add_argument("--csv", metavar="FILE", help="write the ranked planes as CSV")
-    g.add_argument("--geojson", metavar="FILE", help="write planes/trace segments as GeoJSON")
+    g.add_argument("--csv", metavar="FILE", help="write the ranked planes as CSV (with .csvt/.prj "
+                   "sidecars and the caution and site results in FILE's .json sidecar)")
+    g.add_argument("--geojson", metavar="FILE", help="write three GeoJSON layers beside FILE: "
+                   "STEM_traces (lines), STEM_planes and STEM_sites (points)")
+    g.add_argument("--gpkg", metavar="FILE", help="write a GeoPackage with the layers traces, "
+                   "planes and sites")
     g.add_argument("--mohr-png", metavar="FILE", help="write a Mohr diagram")
     g.add_argument("--polygon-png", metavar="FILE", help="write the stress polygon")
     g.add_argument("--map-png", metavar="FILE", help="write a map of traces coloured by margin")

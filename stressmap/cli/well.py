@@ -24,8 +24,10 @@ from stressmap.cli.model import parse_weights
 from stressmap.cli.screen import parse_pair, read_density_profile
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
+from stressmap.formats.table import metadata_json
 from stressmap.formats.wells import csv_table, json_document
 from stressmap.io.faults import read_fault_file
+from stressmap.io.files import write_atomic
 from stressmap.io.modeldir import read_model
 from stressmap.plot import wells as plot_wells
 
@@ -191,7 +193,12 @@ def _run(args) -> int:
         if suffix == ".json":
             path.write_text(json.dumps(doc, indent=1), encoding="utf-8")
         elif suffix == ".csv":
-            path.write_text(csv_table(result), encoding="utf-8")
+            write_atomic(path, csv_table(result))
+            sidecar = path.with_suffix(".json")  # the caution beside the plain table
+            if not any(Path(t).resolve() == sidecar.resolve() for t in args.output):
+                write_atomic(sidecar, metadata_json(
+                    {"caution": doc.get("caution", CAUTION), "model": model_info},
+                    {path.name: f"well {kind} table"}))
         elif suffix == ".png" and kind in _PICTURES:
             path.write_bytes(_PICTURES[kind](doc))
         else:

@@ -16,6 +16,8 @@ import numpy as np
 
 from stressmap.analyses.indicators import prepare_indicators
 from stressmap.errors import IndicatorFileError, problem
+from stressmap.formats.geojson import feature_collection, round_coord, round_number
+from stressmap.formats.table import frame_csv, frame_csvt
 
 __all__ = [
     "normalise_columns",
@@ -24,7 +26,9 @@ __all__ = [
     "indicators_from_csv_text",
     "indicators_from_geojson",
     "indicators_csv",
+    "indicators_csvt",
     "indicators_geojson",
+    "table_from_frame",
 ]
 
 
@@ -146,55 +150,61 @@ def _isna(v) -> bool:
         return False
 
 
-def indicators_geojson(frame, columns=None, meta: dict | None = None) -> dict:
+def indicators_geojson(frame, columns=None, meta: dict | None = None, name: str = "indicators") -> dict:
     """RFC 7946 FeatureCollection of an indicator table (columns ``lon``/``lat`` become the geometry).
 
-    ``meta`` entries go in top-level foreign members (e.g. ``caution``).
+    ``meta`` entries go in top-level foreign members (e.g. ``caution``); ``name`` names the layer.
+    Coordinates and numbers are rounded as :mod:`stressmap.formats.geojson` documents.
     """
     columns = [c for c in (columns or frame.columns) if c not in ("lon", "lat", "geometry")]
-    lon = frame["lon"].to_numpy(float)
-    lat = frame["lat"].to_numpy(float)
+    lon = round_coord(frame["lon"].to_numpy(float))
+    lat = round_coord(frame["lat"].to_numpy(float))
     values = [frame[c].to_numpy(object) for c in columns]
     feats = [
         {
             "type": "Feature",
             "geometry": {"type": "Point", "coordinates": [float(lon[i]), float(lat[i])]},
-            "properties": {c: _jsonable(v[i]) for c, v in zip(columns, values)},
+            "properties": {c: round_number(_jsonable(v[i])) for c, v in zip(columns, values)},
         }
         for i in range(len(frame))
     ]
-    out = {"type": "FeatureCollection"}
-    out.update(meta or {})
-    out["features"] = feats
-    return out
+    return feature_collection(feats, name, meta)
 
 
 def indicators_csv(frame, columns=None, meta: dict | None = None) -> str:
-    """CSV text of an indicator table; ``meta`` as leading ``# key: value`` comment lines.
+    """CSV text of an indicator table by the rules of :mod:`stressmap.formats.table`.
 
-    Cells that a spreadsheet would run as a formula (starting with ``=``, ``+``, ``-``, ``@``) are
-    quoted with a leading apostrophe, except numbers.
+    The first line is the header; ``meta`` (the caution, provenance) does not go into the table:
+    writers put it in a metadata sidecar (:func:`stressmap.formats.table.metadata_json`) or HTTP
+    headers. Booleans are ``true``/``false``; formula-like text cells are neutralised.
     """
+    del meta  # kept in the signature: callers pass it for the sidecar, never into the table
     columns = list(columns or [c for c in frame.columns if c != "geometry"])
-    out = frame[columns].copy()
-    from pandas.api.types import is_string_dtype
-
-    for c in out.columns:
-        if out[c].dtype == object or is_string_dtype(out[c].dtype):  # pandas 3: str dtype
-            out[c] = out[c].map(_csv_cell)
-    head = "".join(f"# {k}: {v}\n" for k, v in (meta or {}).items())
-    return head + out.to_csv(index=False, float_format="%.10g", lineterminator="\n")
+    return frame_csv(frame[columns])
 
 
-def _csv_cell(v):
-    if isinstance(v, str) and v[:1] in ("=", "+", "-", "@") and not _is_number(v):
-        return "'" + v
-    return v
+def indicators_csvt(frame, columns=None) -> str:
+    """GDAL CSVT sidecar line for :func:`indicators_csv` of the same table."""
+    columns = list(columns or [c for c in frame.columns if c != "geometry"])
+    return frame_csvt(frame[columns])
 
 
-def _is_number(s: str) -> bool:
-    try:
-        float(s)
-    except ValueError:
-        return False
-    return True
+def table_from_frame(gdf, name: str = "indicators"):
+    """A raw table from a GeoDataFrame (GeoPackage, shapefile, ...): properties plus lon/lat.
+
+    Returns ``(table, problems)`` as :func:`table_from_geojson`; layers in another CRS are
+    reprojected to lon/lat.
+    """
+    if gdf.crs is not None and not gdf.crs.equals("EPSG:4326"):
+        gdf = gdf.to_crs("EPSG:4326")
+    geoms = gdf.geometry
+    kinds = geoms.geom_type.to_numpy()
+    is_point = kinds == "Point"
+    problems = [problem(f"geometry must be a Point, got {kinds[i]}", field="geometry", row=int(i) + 1)
+                for i in np.flatnonzero(~is_point)]
+    table = normalise_columns(gdf.drop(columns=gdf.geometry.name).reset_index(drop=True))
+    table = table.drop(columns=[c for c in ("lon", "lat") if c in table.columns])
+    safe = geoms.where(is_point)
+    table.insert(0, "lat", np.where(is_point, safe.y.to_numpy(float), np.nan))
+    table.insert(0, "lon", np.where(is_point, safe.x.to_numpy(float), np.nan))
+    return table, problems

@@ -9,17 +9,19 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
-import numpy as np
-
 from stressmap.analyses.indicators import prepare_indicators
 from stressmap.errors import IndicatorFileError, problem
+from stressmap.formats.gpkg import frame_to_layer
 from stressmap.formats.indicators import (
     indicators_csv,
+    indicators_csvt,
     indicators_geojson,
-    normalise_columns,
     table_from_csv_text,
+    table_from_frame,
     table_from_geojson,
 )
+from stressmap.io.files import write_atomic
+from stressmap.io.outputs import write_csv_with_sidecars, write_geopackage
 
 __all__ = [
     "read_table",
@@ -55,26 +57,16 @@ def read_table(path):
             raise IndicatorFileError(f"{path.name} is not valid JSON: {exc}",
                                      [problem(f"invalid JSON: {exc}")]) from exc
         return table_from_geojson(doc, field=path.name)
-    if suffix == ".gpkg":
+    if suffix in (".gpkg", ".shp"):
         import geopandas as gpd
 
         try:
             gdf = gpd.read_file(path)
         except Exception as exc:  # pyogrio raises several types for unreadable files
-            raise IndicatorFileError(f"cannot read {path.name} as a GeoPackage: {exc}") from exc
-        geoms = gdf.geometry
-        kinds = geoms.geom_type.to_numpy()
-        is_point = kinds == "Point"
-        problems = [problem(f"geometry must be a Point, got {kinds[i]}", field="geometry", row=int(i) + 1)
-                    for i in np.flatnonzero(~is_point)]
-        table = normalise_columns(gdf.drop(columns=gdf.geometry.name).reset_index(drop=True))
-        table = table.drop(columns=[c for c in ("lon", "lat") if c in table.columns])
-        safe = geoms.where(is_point)
-        table.insert(0, "lat", np.where(is_point, safe.y.to_numpy(float), np.nan))
-        table.insert(0, "lon", np.where(is_point, safe.x.to_numpy(float), np.nan))
-        return table, problems
+            raise IndicatorFileError(f"cannot read {path.name} as a vector file: {exc}") from exc
+        return table_from_frame(gdf, path.name)
     raise IndicatorFileError(
-        f"unsupported indicator file type {suffix!r}: use .csv, .geojson or .gpkg",
+        f"unsupported indicator file type {suffix!r}: use .csv, .geojson, .gpkg or .shp",
         [problem("unsupported file type", field=path.name)],
     )
 
@@ -89,18 +81,19 @@ def read_indicators(path, skip_bad: bool = False):
 
 
 def write_indicators(frame, path, columns=None, meta: dict | None = None) -> Path:
-    """Write an indicator table as ``.csv`` or ``.geojson`` (chosen by the suffix)."""
+    """Write an indicator table as ``.csv`` (with sidecars), ``.geojson`` or ``.gpkg`` (by the
+    suffix), atomically."""
     path = Path(path)
     suffix = path.suffix.lower()
     if suffix == ".csv":
-        text = indicators_csv(frame, columns, meta)
-    elif suffix in (".geojson", ".json"):
-        text = json.dumps(indicators_geojson(frame, columns, meta), allow_nan=False, ensure_ascii=False)
-    else:
-        raise IndicatorFileError(f"unsupported output type {suffix!r}: use .csv or .geojson",
-                                 [problem("output must end in .csv or .geojson", field=str(path))])
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(path.name + ".tmp")
-    tmp.write_text(text, encoding="utf-8")
-    tmp.replace(path)
-    return path
+        return write_csv_with_sidecars(path, indicators_csv(frame, columns),
+                                       indicators_csvt(frame, columns), meta)
+    if suffix in (".geojson", ".json"):
+        text = json.dumps(indicators_geojson(frame, columns, meta, name=path.stem), allow_nan=False,
+                          ensure_ascii=False)
+        return write_atomic(path, text)
+    if suffix == ".gpkg":
+        columns = list(columns or [c for c in frame.columns if c != "geometry"])
+        return write_geopackage(path, {path.stem: frame_to_layer(frame[columns])}, meta)
+    raise IndicatorFileError(f"unsupported output type {suffix!r}: use .csv, .geojson or .gpkg",
+                             [problem("output must end in .csv, .geojson or .gpkg", field=str(path))])

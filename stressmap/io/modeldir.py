@@ -9,13 +9,13 @@ aside first and removes it only after the new one is in place.
 
 from __future__ import annotations
 
-import json
 import os
 import shutil
 import uuid
 from pathlib import Path
 
 from stressmap.errors import NotFoundError, StorageError
+from stressmap.formats import jsontext
 from stressmap.model import BuiltModel
 
 __all__ = ["write_model", "read_model", "MODEL_FILES", "fsync_dir"]
@@ -40,19 +40,9 @@ def fsync_dir(path: Path) -> None:
 
 def _write_json(path: Path, data) -> None:
     with path.open("w", encoding="utf-8") as fh:
-        json.dump(data, fh, indent=1, allow_nan=False, default=_json_default)
+        fh.write(jsontext.dumps(data, indent=1))
         fh.flush()
         os.fsync(fh.fileno())
-
-
-def _json_default(obj):
-    import numpy as np
-
-    if isinstance(obj, np.generic):
-        return obj.item()
-    if isinstance(obj, np.ndarray):
-        return obj.tolist()
-    raise TypeError(f"not JSON serialisable: {type(obj).__name__}")
 
 
 def write_model(model, directory) -> Path:
@@ -101,8 +91,8 @@ def read_model(directory):
     if missing:
         raise StorageError(f"model directory {path.name} is incomplete: missing {', '.join(missing)}")
     try:
-        definition = json.loads((path / "definition.json").read_text(encoding="utf-8"))
-        summary = json.loads((path / "summary.json").read_text(encoding="utf-8"))
+        definition = jsontext.loads((path / "definition.json").read_text(encoding="utf-8"))
+        summary = jsontext.loads((path / "summary.json").read_text(encoding="utf-8"))
         fields = xr.load_dataset(path / "fields.nc", engine="netcdf4")
     except (OSError, ValueError) as exc:
         raise StorageError(f"model directory {path.name} cannot be read: {exc}") from exc

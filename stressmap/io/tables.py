@@ -1,7 +1,8 @@
 """CSV tables from files: the one reader the edges share (fault tables, density profiles).
 
-Layer: io (paths and files). Rows are data rows numbered from 1 (the header is row 0); ``#``
-starts a comment; spaces after commas are ignored.
+Layer: io (paths and files). Parsing is :func:`stressmap.formats.tables.csv_table_from_text`.
+Rows are data rows numbered from 1 (the header is row 0); ``#`` starts a comment; spaces after
+commas are ignored.
 """
 
 from __future__ import annotations
@@ -9,6 +10,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from stressmap.errors import InputError, problem
+from stressmap.formats.tables import csv_table_from_text
 
 __all__ = ["read_csv_table"]
 
@@ -26,16 +28,10 @@ def read_csv_table(path, required=(), *, what: str = "table", field: str = "file
     field : str
         The field (CLI option or request field) an unreadable file is reported under.
     """
-    import pandas as pd  # the CLI imports this module for every command; pandas only when reading
-
     path = Path(path)
     try:
-        frame = pd.read_csv(path, comment="#", skipinitialspace=True)
-    except (OSError, ValueError) as exc:  # ValueError: parser, encoding and empty-file errors
+        text = path.read_text(encoding="utf-8-sig")
+    except (OSError, UnicodeDecodeError) as exc:
         raise InputError(f"cannot read {what} {path}: {exc}",
                          [problem(str(exc), field=field)]) from exc
-    missing = [c for c in required if c not in frame.columns]
-    if missing:
-        raise InputError(f"{what} {path} lacks column(s) {', '.join(missing)}",
-                         [problem("required column missing", field=c) for c in missing])
-    return frame
+    return csv_table_from_text(text, required, what=what, name=str(path), field=field)

@@ -156,10 +156,10 @@ def test_ensemble_job_points_matches_the_library(svc, coarse_demo_model, tmp_pat
     assert [p["site"] for p in props] == ["A", "B", "C"]
     lib = ensemble_points(coarse_demo_model, [-20, -10, 60], [-20, -15, 10], members=400,
                           distributions=dist, seed=7)
-    assert_allclose([p["shmax_azimuth_deg"] for p in props[:2]],
-                    lib["shmax_azimuth_deg"].values[:2], rtol=1e-12)
+    assert_allclose([p["shmax_azimuth_deg"] for p in props[:2]],  # GeoJSON: 7 significant digits
+                    lib["shmax_azimuth_deg"].values[:2], rtol=5e-7)
     assert_allclose([p["s_hmax_mpa_p95"] for p in props[:2]],
-                    lib["s_hmax_mpa"].values[:2, 2], rtol=1e-12)
+                    lib["s_hmax_mpa"].values[:2, 2], rtol=5e-7)  # GeoJSON: 7 significant digits
     assert props[2]["shmax_azimuth_deg"] is None
 
     import xarray as xr

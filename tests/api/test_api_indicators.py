@@ -73,7 +73,8 @@ def test_compare_csv_text_geojson_csv_png(client, model_id):
     assert gj.json["caution"] == CAUTION and gj.json["summary"]["total"] == 10
     csv = client.post(url + "?format=csv", json=body)
     assert csv.status_code == 200 and csv.mimetype == "text/csv"
-    assert csv.get_data(as_text=True).startswith("# caution: ")
+    assert csv.get_data(as_text=True).startswith("id,lon,lat,")  # a plain table, header first
+    assert csv.headers["X-Stressmap-Caution"] == CAUTION and csv.headers["X-Stressmap-Model-Id"] == model_id
     for picture in ("map", "rose"):
         png = client.post(url, json=body | {"format": "png", "picture": picture})
         assert png.status_code == 200 and png.mimetype == "image/png"

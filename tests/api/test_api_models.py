@@ -122,7 +122,8 @@ def test_points_geojson_reads_back_with_geopandas(svc, library_model):
     assert_allclose(np.c_[frame.geometry.x, frame.geometry.y], pts, atol=0)
     assert frame["inside"].tolist() == [True, True, False]
     ref = predict_points(library_model, [p[0] for p in pts], [p[1] for p in pts])
-    assert_allclose(frame["shmax_azimuth_deg"][:2], ref["shmax_azimuth_deg"].values[:2], atol=1e-9)
+    # GeoJSON numbers carry 7 significant digits (stressmap.formats.geojson, README)
+    assert_allclose(frame["shmax_azimuth_deg"][:2], ref["shmax_azimuth_deg"].values[:2], rtol=5e-7)
     assert frame["regime"][:2].tolist() == ref["regime"].values[:2].tolist()
     assert resp.json["features"][2]["properties"]["s_hmax_mpa"] is None  # outside: null
 
@@ -142,7 +143,7 @@ def test_feature_collection_properties_are_echoed(svc):
         "normal", "strike-slip", "reverse")
 
 
-def test_points_csv_carries_comment_lines(svc):
+def test_points_csv_is_a_plain_table_with_metadata_headers(svc):
     import pandas as pd
 
     app, client, model_id = svc
@@ -150,9 +151,10 @@ def test_points_csv_carries_comment_lines(svc):
                        json={"points": [[-15.0, -20.0]], "format": "csv"})
     assert resp.status_code == 200 and resp.mimetype == "text/csv"
     text = resp.data.decode()
-    header = dict(line[2:].split(": ", 1) for line in text.splitlines() if line.startswith("# "))
-    assert header["caution"] == CAUTION and header["model_id"] == model_id
-    table = pd.read_csv(io.StringIO(text), comment="#")
+    assert text.startswith("lon,lat,") and "#" not in text  # header first, no comment lines
+    assert resp.headers["X-Stressmap-Caution"] == CAUTION
+    assert resp.headers["X-Stressmap-Model-Id"] == model_id
+    table = pd.read_csv(io.StringIO(text))
     assert table.loc[0, "lon"] == -15.0 and table.loc[0, "lat"] == -20.0
     assert 0.0 <= table.loc[0, "shmax_azimuth_deg"] < 180.0
 
@@ -215,11 +217,13 @@ def test_field_url_serves_a_gis_layer(svc):
     _meta_ok(resp.json, model_id)
     feats = resp.json["features"]
     assert feats and all(f["properties"]["inside"] for f in feats)
+    assert resp.json["name"] == f"stressmap-{model_id[:8]}-field"  # the layer name GDAL shows
     same = client.post(f"{API}/models/{model_id}/predict",
                        json={"region": {"bbox": [-37, -37, 9, -3], "spacing_km": 400}}).json
     assert same["features"] == feats
     csv = client.get(f"{API}/models/{model_id}/field?bbox=-37,-37,9,-3&spacing_km=400&format=csv")
-    assert csv.status_code == 200 and csv.data.startswith(b"# caution: ")
+    assert csv.status_code == 200 and csv.data.startswith(b"lon,lat,")
+    assert csv.headers["X-Stressmap-Caution"] == CAUTION
 
 
 def test_weights_scale_stress_linearly(svc):
@@ -231,9 +235,10 @@ def test_weights_scale_stress_linearly(svc):
     two = client.post(f"{API}/models/{model_id}/predict",
                       json={**pts, "weights": {g: 2.0 for g in groups}}).json["features"]
     for a, b in zip(one, two):
-        assert_allclose(b["properties"]["s_hmax_mpa"], 2 * a["properties"]["s_hmax_mpa"], rtol=1e-12)
+        # GeoJSON numbers carry 7 significant digits (stressmap.formats.geojson, README)
+        assert_allclose(b["properties"]["s_hmax_mpa"], 2 * a["properties"]["s_hmax_mpa"], rtol=1e-6)
         assert_allclose(b["properties"]["shmax_azimuth_deg"], a["properties"]["shmax_azimuth_deg"],
-                        atol=1e-9)
+                        atol=1e-4)
 
 
 def test_boundary_forces_point_into_or_out_of_the_plate_by_kind(svc, library_model):

@@ -91,10 +91,24 @@ def test_geojson_reads_back_with_geopandas(client):
     assert frame["pore_pressure_margin_mpa"].is_monotonic_increasing
 
 
+@pytest.mark.parametrize("layer, kinds", [("traces", ["LineString", "LineString"]),
+                                          ("planes", ["Point", "Point"]), ("sites", ["Point"])])
+def test_geojson_layer_holds_one_geometry_kind(client, layer, kinds):
+    import geopandas as gpd
+
+    resp = client.post("/api/v1/screen", json={**BODY, "faults": FAULTS, "format": "geojson",
+                                               "layer": layer})
+    assert resp.status_code == 200 and resp.json["name"] == layer
+    assert resp.json["caution"].startswith(CAUTION)
+    frame = gpd.read_file(io.BytesIO(resp.data))
+    assert sorted(frame.geometry.geom_type) == kinds
+
+
 def test_csv_and_png(client):
     resp = client.post("/api/v1/screen", json={**BODY, "format": "csv"})
     assert resp.status_code == 200 and resp.mimetype == "text/csv"
-    assert resp.get_data(as_text=True).startswith(f"# caution: {CAUTION}")
+    assert resp.get_data(as_text=True).startswith("lon,lat,at_site,")  # header first
+    assert resp.headers["X-Stressmap-Caution"].startswith(CAUTION)
     for picture in ("mohr", "polygon", "map"):
         resp = client.post("/api/v1/screen",
                            json={**BODY, "faults": FAULTS, "format": "png", "picture": picture})

@@ -110,7 +110,7 @@ def test_ensemble_grid_netcdf_and_png(coarse_demo_dir, tmp_path, capsys):
     capsys.readouterr()
     with xr.open_dataset(nc) as ds:
         assert ds.attrs["caution"] == CAUTION
-        assert ds["s_hmax_mpa"].dims == ("lat", "lon", "percentile")
+        assert ds["s_hmax_mpa"].dims == ("percentile", "lat", "lon")  # one raster band per percentile
         assert list(ds["percentile"].values) == [5.0, 50.0, 95.0]
         assert ds.sizes["member"] == 50
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"   # PNG signature (PNG spec, section 5.2)

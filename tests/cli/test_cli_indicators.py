@@ -111,8 +111,9 @@ def test_compare_writes_everything(coarse_demo_dir, tmp_path, capsys):
     assert summary["caution"] == CAUTION and summary["model_id"] == coarse_demo_dir.name
     assert summary["overall"]["count"] > 250
     csv_text = (out / "indicators.csv").read_text()
-    assert csv_text.startswith("# caution: ")
-    table = pd.read_csv(out / "indicators.csv", comment="#")
+    assert csv_text.startswith("id,lon,lat,")  # header first; caution in the sidecar
+    assert json.loads((out / "indicators.json").read_text())["caution"] == CAUTION
+    table = pd.read_csv(out / "indicators.csv")
     assert {"misfit_deg", "predicted_shmax_azimuth_deg", "regime_agreement", "province"} <= set(table.columns)
     fc = json.loads((out / "indicators.geojson").read_text())
     assert fc["caution"] == CAUTION and len(fc["features"]) == len(table)
@@ -133,8 +134,8 @@ def test_compare_weights_and_errors(coarse_demo_dir, tmp_path, capsys):
 
 
 def test_demo_data_is_labelled_fictional_and_complete():
-    head = DEMO.read_text().splitlines()[:4]
-    assert any("FICTIONAL" in line for line in head)
+    assert DEMO.read_text().startswith("id,lon,lat,")  # a plain table; the label is in the sidecar
+    assert "FICTIONAL" in json.loads(DEMO.with_suffix(".json").read_text())["description"]
     gdf = read_indicators(DEMO)
     assert 250 <= len(gdf) <= 500
     assert set(gdf["type"]) == {"breakout", "tensile_fracture", "hydraulic_fracture", "overcoring",

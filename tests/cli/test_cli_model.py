@@ -105,7 +105,9 @@ def test_predict_points_to_geojson_csv_netcdf(built_dir, tmp_path):
     assert np.isnan(gdf["shmax_azimuth_deg"][2])  # outside the plate: reported, not extrapolated
     assert json.loads((tmp_path / "pred.geojson").read_text())["caution"] == CAUTION
     csv_text = (tmp_path / "pred.csv").read_text()
-    assert csv_text.startswith("# caution: ")
+    assert csv_text.startswith("lon,lat,well,")  # header first; the caution is in the sidecar
+    assert json.loads((tmp_path / "pred.json").read_text())["caution"] == CAUTION
+    assert "CoordX" in (tmp_path / "pred.csvt").read_text()
     frame = pd.read_csv(tmp_path / "pred.csv", comment="#")
     assert_allclose(frame["s_hmax_mpa"][:2], gdf["s_hmax_mpa"][:2], rtol=1e-6)
     with xr.open_dataset(tmp_path / "pred.nc", engine="netcdf4") as ds:

@@ -81,20 +81,24 @@ def test_traces_from_a_geojson_file_get_right_hand_rule_strikes(capsys, tmp_path
     for s in segs:  # dipping east -> strike near north (0/360), dip direction near 90
         assert min(s["strike_deg"], 360 - s["strike_deg"]) < 5.0
         assert abs(s["dip_direction_deg"] - 90.0) < 5.0
-    geo = json.loads(out_geo.read_text())
-    assert geo["type"] == "FeatureCollection" and geo["caution"].startswith(CAUTION)
-    kinds = sorted(f["geometry"]["type"] for f in geo["features"])
-    assert kinds == ["LineString", "LineString", "Point"]
+    kinds = {}
+    for layer in ("traces", "planes", "sites"):  # one geometry kind per layer
+        geo = json.loads((tmp_path / f"out_{layer}.geojson").read_text())
+        assert geo["type"] == "FeatureCollection" and geo["caution"].startswith(CAUTION)
+        assert geo["name"] == layer
+        kinds[layer] = sorted(f["geometry"]["type"] for f in geo["features"])
+    assert kinds == {"traces": ["LineString", "LineString"], "planes": ["Point"], "sites": ["Point"]}
 
 
 def test_csv_file_carries_the_caution(capsys, tmp_path):
     out = tmp_path / "planes.csv"
     assert main([*BASE, *ORIENT, "--plane", "040/60", "--csv", str(out)]) == 0
     text = out.read_text()
-    assert text.startswith(f"# caution: {CAUTION}")
+    assert text.startswith("lon,lat,at_site,")  # header first
+    assert json.loads(out.with_suffix(".json").read_text())["caution"].startswith(CAUTION)
     import pandas as pd
 
-    frame = pd.read_csv(out, comment="#")
+    frame = pd.read_csv(out)
     assert list(frame["strike_deg"]) == [40.0]
     assert "pore_pressure_margin_mpa" in frame.columns
     printed = capsys.readouterr().out

@@ -40,6 +40,7 @@ def test_profile_with_sampling(tmp_path, capsys):
                  "--friction-range", "0.5,0.8", "--samples", "200", "-o", str(csv)]) == 0
     table = pd.read_csv(csv)
     assert len(table) == 51 and "shmin_p95_mpa" in table.columns
+    assert json.loads(csv.with_suffix(".json").read_text())["caution"].startswith(CAUTION)  # sidecar
 
 
 def test_path_needs_planes_and_names_the_field(capsys):

@@ -66,14 +66,15 @@ def test_grid_geojson_drops_outside_nodes(grid_ds):
     assert coords == [(0.0, 10.0), (0.0, 11.0), (1.0, 11.0), (2.0, 10.0)]
 
 
-def test_csv_round_trip_with_meta_comments(point_ds):
+def test_csv_header_first_and_meta_kept_out_of_the_table(point_ds):
     import pandas as pd
 
     text = export.points_csv(point_ds, {"caution": CAUTION})
-    assert text.startswith(f"# caution: {CAUTION}\n")
-    frame = pd.read_csv(io.StringIO(text), comment="#")
+    assert text.startswith("lon,lat,") and CAUTION not in text  # the caution goes in the sidecar
+    frame = pd.read_csv(io.StringIO(text))
     assert list(frame.columns[:2]) == ["lon", "lat"]
     assert_allclose(frame["shmax_azimuth_deg"][:2], [12.5, 179.0])
+    assert frame["inside"].tolist() == [True, True, False]  # pandas reads true/false as booleans
 
 
 @pytest.mark.parametrize("payload", ["=1+2", "+cmd", "-2+3", "@SUM(A1)", "\t=x"])
