@@ -17,7 +17,7 @@ from stressmap_api.store import check_id, get_store
 
 from stressmap.analyses import wells
 from stressmap.constants import CAUTION
-from stressmap.errors import InputError, problem
+from stressmap.errors import InputError, NotFoundError, problem
 from stressmap.formats.screening import decode_geojson_parts
 from stressmap.formats.wells import csv_table, json_document
 from stressmap.plot import wells as plot_wells
@@ -68,8 +68,7 @@ def _run(analysis, req, model, info, fmt):
 @bp.post("/wells/<analysis>")
 def run(analysis: str):
     if analysis not in ANALYSES:
-        raise InputError(f"unknown well analysis {analysis!r}",
-                         [problem(f"use one of {', '.join(ANALYSES)}", field="analysis")])
+        raise NotFoundError(f"no well analysis {analysis!r}; use one of {', '.join(ANALYSES)}")
     body = queries.json_body(request)
     if not isinstance(body, dict):
         raise InputError("the request body must be a JSON object",

@@ -208,7 +208,7 @@ def format_text(doc: dict) -> str:
                 band = (f"{_fmt(p['margin_band_low_mpa'], 1)}.."
                         f"{_fmt(p['margin_band_high_mpa'], 1)}")
                 row += f" {band:>15} {_fmt(p['reactivation_share']):>6}"
-            seg = f" #{p['segment']}" if p.get("segment", -1) > 0 else ""
+            seg = f" #{p['segment']}" if (p.get("segment") or 0) > 0 else ""
             lines.append(f"{row}  {p['name']}{seg}")
         lines.append("  (Ts slip tendency, Td dilation tendency, margin: the pore-pressure increase "
                      "to failure, MPa" + ("; 80% of samples: the central band of the sampled "
