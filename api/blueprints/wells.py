@@ -15,7 +15,7 @@ from stressmap_api.render import picture_text, respond
 from stressmap_api.store import check_id, get_store
 
 from stressmap.analyses import wells
-from stressmap.errors import InputError, problem
+from stressmap.errors import InputError, NotFoundError, problem
 from stressmap.formats.screening import decode_geojson_parts
 from stressmap.formats.wells import csv_table, json_document
 from stressmap.plot import wells as plot_wells
@@ -61,8 +61,7 @@ def _run(analysis, req, model, info, fmt):
 @bp.post("/wells/<analysis>")
 def run(analysis: str):
     if analysis not in ANALYSES:
-        raise InputError(f"unknown well analysis {analysis!r}",
-                         [problem(f"use one of {', '.join(ANALYSES)}", field="analysis")])
+        raise NotFoundError(f"no well analysis {analysis!r}; use one of {', '.join(ANALYSES)}")
     body = dict(requests.object_body(request))
     fmt = _format(body, analysis)
     model, info = _model(body)

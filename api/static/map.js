@@ -161,15 +161,51 @@
       for (let lon = w; lon <= e; lon += Math.max(step / 4, 0.5)) pts.push([lat, lon]);
       layers.graticule.addLayer(L.polyline(pts, style));
     }
+    // degree labels: meridians along the top edge of the view, parallels along the left edge,
+    // kept clear of the zoom buttons (top left), the scale bar (bottom left) and the edges
+    const size = map.getSize();
+    const topLat = map.containerPointToLatLng([0, 4]).lat;
+    const leftLon = map.containerPointToLatLng([6, 0]).lng;
+    for (let lon = w; lon <= e; lon += step) {
+      const x = map.latLngToContainerPoint([topLat, lon]).x;
+      if (x > 70 && x < size.x - 30) addGraticuleLabel([topLat, lon], lonText(lon), 'top');
+    }
+    for (let lat = s; lat <= n; lat += step) {
+      const y = map.latLngToContainerPoint([lat, leftLon]).y;
+      if (y > 90 && y < size.y - 45) addGraticuleLabel([lat, leftLon], latText(lat), 'left');
+    }
+  }
+
+  function lonText(lon) {
+    const x = ((lon + 180) % 360 + 360) % 360 - 180;  // wrapped to [-180, 180)
+    return x === 0 || x === -180 ? Math.abs(x) + '\u00b0' : Math.abs(x) + '\u00b0' + (x < 0 ? 'W' : 'E');
+  }
+  const latText = (lat) => (lat === 0 ? '0\u00b0' : Math.abs(lat) + '\u00b0' + (lat < 0 ? 'S' : 'N'));
+
+  function addGraticuleLabel(latlng, text, align) {
+    const icon = L.divIcon({className: 'grat-label', html: '', iconSize: null,
+      iconAnchor: align === 'top' ? [14, 0] : [0, 7]});
+    const m = L.marker(latlng, {icon: icon, interactive: false, keyboard: false});
+    m.on('add', () => { m.getElement().textContent = text; });
+    layers.graticule.addLayer(m);
   }
 
   // ------------------------------------------------------------------ legend
+  let legendOpen = true;
   function drawLegend(kinds) {
     const el = $('legend');
     el.textContent = '';
+    // a disclosure, so that on a small screen the legend can be folded away from the plate
+    const box = document.createElement('details');
+    box.open = legendOpen;
+    box.addEventListener('toggle', () => { legendOpen = box.open; });
+    const summary = document.createElement('summary');
+    summary.textContent = 'Legend';
+    box.appendChild(summary);
+    el.appendChild(box);
     const h = document.createElement('h3');
     h.textContent = 'SHmax tick colour: regime index A-phi';
-    el.appendChild(h);
+    box.appendChild(h);
     const bar = document.createElement('canvas');
     bar.width = 200; bar.height = 12;
     const ctx = bar.getContext('2d');
@@ -179,7 +215,7 @@
     });
     bar.setAttribute('role', 'img');
     bar.setAttribute('aria-label', 'colour scale from 0 (radial extension) to 3 (radial compression)');
-    el.appendChild(bar);
+    box.appendChild(bar);
     const scale = document.createElement('div');
     scale.className = 'scale';
     for (const t of S.regime_ticks) {
@@ -187,10 +223,10 @@
       span.textContent = t.label;
       scale.appendChild(span);
     }
-    el.appendChild(scale);
+    box.appendChild(scale);
     const h2 = document.createElement('h3');
     h2.textContent = 'Plate boundary';
-    el.appendChild(h2);
+    box.appendChild(h2);
     for (const kind of kinds) {
       const st = S.boundary_styles[kind] || {width_px: 1.3, dash_px: [], colour: '#444444', label: kind};
       const row = document.createElement('div');
@@ -204,13 +240,13 @@
       const label = document.createElement('span');
       label.textContent = st.label;
       row.appendChild(label);
-      el.appendChild(row);
+      box.appendChild(row);
     }
     const extra = document.createElement('p');
     extra.className = 'hint';
     extra.textContent = 'Hollow ticks: measured indicators (outline grows with |misfit|). ' +
       'Fans: ensemble 1-sigma spread of SHmax.';
-    el.appendChild(extra);
+    box.appendChild(extra);
   }
 
   // ------------------------------------------------------------------ sources (models, networks)

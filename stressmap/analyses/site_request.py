@@ -196,7 +196,7 @@ def _site_fields(doc: dict, problems: list) -> dict:
     depth = _number(doc, "depth_km", problems, lo=0.0, lo_open=True, hi=40.0)
     if doc.get("depth_km") is None:  # missing or null
         problems.append(problem("required: depth below the surface in km", field="depth_km"))
-    az = _number(doc, "shmax_azimuth_deg", problems)
+    az = _number(doc, "shmax_azimuth_deg", problems, lo=-360.0, hi=360.0)
     regime = doc.get("regime")
     if regime is not None and not isinstance(regime, str):
         problems.append(problem(f"must be one of {', '.join(sc.REGIMES)}, got a "

@@ -291,7 +291,7 @@ def _orientation(req: ScreenRequest, model, sources: dict, notes: list):
         az, sources["shmax_azimuth_deg"] = orient["shmax_azimuth_deg"], "model"
     else:
         az = math.nan
-        missing.append(problem("give --shmax-azimuth-deg (shmax_azimuth_deg) or a model" if
+        missing.append(problem("give shmax_azimuth_deg or a model" if
                                orient is None else "the model has no SHmax direction here "
                                "(isotropic); give shmax_azimuth_deg", field="shmax_azimuth_deg"))
     if req.regime is not None:
@@ -302,7 +302,7 @@ def _orientation(req: ScreenRequest, model, sources: dict, notes: list):
         regime, sources["regime"] = None, "measured magnitudes"
     else:
         regime = None
-        missing.append(problem("give --regime (regime) or a model" if orient is None else
+        missing.append(problem("give regime or a model" if orient is None else
                                "the model gives no regime here; give regime", field="regime"))
     if missing:
         raise InputError("the site's stress orientation is not known" if len(missing) > 1 else

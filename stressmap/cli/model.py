@@ -104,6 +104,9 @@ def _cmd_predict(args) -> int:
     weights = parse_weights(args.weights)
     out = Path(args.output)
     output_kind(out)  # refuse an unknown suffix before any work
+    if args.points and out.resolve() == Path(args.points).resolve():
+        raise InputError(f"-o {args.output} is the --points file: it would be overwritten",
+                         [problem("write the predictions to another file", field="-o")])
     meta = {
         "caution": CAUTION,
         "model_name": model.summary.get("name", ""),

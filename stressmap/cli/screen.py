@@ -78,18 +78,21 @@ def read_density_profile(path) -> dict:
     """Density profile file (CSV): columns ``top_km``, ``density_kg_m3`` and optionally
     ``gradient_kg_m3_per_km``; one row per layer from the surface down; '#' starts a comment.
     """
-    frame = read_csv_table(path, ("top_km", "density_kg_m3"), what="density profile",
-                           field="--density-profile")
-    out: dict = {}
-    problems: list = []
-    for col in ("top_km", "density_kg_m3", "gradient_kg_m3_per_km"):
-        if col in frame.columns:
-            optional = col == "gradient_kg_m3_per_km"  # an empty cell: no gradient in that layer
-            values = [validate.number(validate.cell(v), col, problems, row=i + 1, text=True,
-                                      required=not optional)
-                      for i, v in enumerate(frame[col].tolist())]
-            out[col] = [0.0 if optional and v is None else v for v in values]
-    validate.raise_problems(problems, f"density profile {path}: {len(problems)} bad cell(s)")
+    try:
+        frame = read_csv_table(path, ("top_km", "density_kg_m3"), what="density profile",
+                               field="--density-profile")
+        out: dict = {}
+        problems: list = []
+        for col in ("top_km", "density_kg_m3", "gradient_kg_m3_per_km"):
+            if col in frame.columns:
+                optional = col == "gradient_kg_m3_per_km"  # an empty cell: no gradient in that layer
+                values = [validate.number(validate.cell(v), col, problems, row=i + 1, text=True,
+                                          required=not optional)
+                          for i, v in enumerate(frame[col].tolist())]
+                out[col] = [0.0 if optional and v is None else v for v in values]
+        validate.raise_problems(problems, f"density profile {path}: {len(problems)} bad cell(s)")
+    except InputError as exc:  # the fields are the file's columns: they keep their names
+        raise InputError(exc.message, [{**p, "file": str(path)} for p in exc.problems]) from None
     return out
 
 
@@ -205,7 +208,7 @@ def format_text(doc: dict) -> str:
                 band = (f"{_fmt(p['margin_band_low_mpa'], 1)}.."
                         f"{_fmt(p['margin_band_high_mpa'], 1)}")
                 row += f" {band:>15} {_fmt(p['reactivation_share']):>6}"
-            seg = f" #{p['segment']}" if p.get("segment", -1) > 0 else ""
+            seg = f" #{p['segment']}" if (p.get("segment") or 0) > 0 else ""
             lines.append(f"{row}  {p['name']}{seg}")
         lines.append("  (Ts slip tendency, Td dilation tendency, margin: the pore-pressure increase "
                      "to failure, MPa" + ("; 80% of samples: the central band of the sampled "
@@ -237,7 +240,10 @@ def flag_words(text: str, flags: dict) -> str:
 
 def _with_flags(exc: InputError, flags: dict) -> InputError:
     """The same error with request fields named as the flags that set them."""
-    probs = [{**p, "message": flag_words(p["message"], flags),
+    if exc.problems and all(p.get("file") for p in exc.problems):
+        return exc  # about a file's columns and rows (``density_kg_m3`` is a column there)
+    probs = [p if p.get("file") else
+             {**p, "message": flag_words(p["message"], flags),
               **({"field": flag_words(p["field"], flags)} if p.get("field") else {})}
              for p in exc.problems]
     return InputError(flag_words(exc.message, flags), probs)

@@ -107,7 +107,11 @@ def _plane_records(result: ScreenResult) -> list[dict]:
     if not result.planes or result.planes["strike_deg"].size == 0:
         return []
     frame = pd.DataFrame({f: result.planes[f] for f in fields})
-    return [_plain(r) for r in frame.to_dict("records")]
+    records = [_plain(r) for r in frame.to_dict("records")]
+    for r in records:  # planes given as strike/dip have no trace segment: null, not -1
+        if r.get("segment") is not None and r["segment"] < 1:
+            r["segment"] = None
+    return records
 
 
 def _fault_summary(result: ScreenResult) -> list[dict]:

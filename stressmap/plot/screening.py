@@ -267,6 +267,13 @@ def _fault_window(site, pts) -> MapWindow:
     return MapWindow(cx - half / coslat, cx + half / coslat, cy - half, cy + half)
 
 
+#: Colour of the site's SHmax bar: a blue that no colour of the ember margin scale comes near.
+SHMAX_BAR = "#1f5fa8"
+
+#: Colour of the thin outline drawn under fault traces (keeps light margin colours visible).
+TRACE_CASING = "#5a5550"
+
+
 def _draw_traces(ax, result, is_seg, norm):
     """Trace segments coloured by margin; returns (collection or None, [(lon, lat)...])."""
     from matplotlib.collections import LineCollection
@@ -275,7 +282,11 @@ def _draw_traces(ax, result, is_seg, norm):
         return None, []
     segs = result.plane_geometry[is_seg].copy()
     segs[..., 0] = _wrap_lon(segs[..., 0], result.site["lon"])
-    lc = LineCollection(segs, cmap=_margin_cmap(), norm=norm, linewidths=2.6, gid="fault-traces")
+    # a dark casing under each trace: the palest margin colour would vanish into the background
+    ax.add_collection(LineCollection(segs, colors=TRACE_CASING, linewidths=4.0, zorder=1.9,
+                                     capstyle="round", gid="fault-trace-casing"))
+    lc = LineCollection(segs, cmap=_margin_cmap(), norm=norm, linewidths=2.6, zorder=2,
+                        capstyle="round", gid="fault-traces")
     lc.set_array(result.planes["pore_pressure_margin_mpa"][is_seg])
     ax.add_collection(lc)
     return lc, [segs.reshape(-1, 2)]
@@ -323,7 +334,7 @@ def _draw_site(ax, s, half) -> None:
     a = math.radians(s["shmax_azimuth_deg"])
     d = 0.3 * half
     ax.plot([s["lon"] - d * math.sin(a) / coslat, s["lon"] + d * math.sin(a) / coslat],
-            [s["lat"] - d * math.cos(a), s["lat"] + d * math.cos(a)], color="#b2182b", lw=2,
+            [s["lat"] - d * math.cos(a), s["lat"] + d * math.cos(a)], color=SHMAX_BAR, lw=2,
             zorder=5, gid="shmax-direction", label=f"SHmax {s['shmax_azimuth_deg']:.0f}\u00b0")
 
 
@@ -355,9 +366,12 @@ def fault_map_figure(result):
         labels += texts
     if located.any():
         xy = np.column_stack([_wrap_lon(geom[located, 0, 0], s["lon"]), geom[located, 0, 1]])
-        mappable = ax.scatter(xy[:, 0], xy[:, 1], c=margins[located], cmap=_margin_cmap(),
-                              norm=norm, marker="s", s=36, edgecolors="k", linewidths=0.5,
-                              zorder=3, gid="fault-planes")
+        # planes logged at one place share a square: the least margin is drawn last, on top,
+        # and above the site star (a well's image-log planes sit at the site)
+        order = np.argsort(-margins[located], kind="stable")
+        mappable = ax.scatter(xy[order, 0], xy[order, 1], c=margins[located][order],
+                              cmap=_margin_cmap(), norm=norm, marker="s", s=36, edgecolors="k",
+                              linewidths=0.5, zorder=4.5, gid="fault-planes")
         pts.append(xy)
         labels_xy.append(xy)
         names = np.asarray(planes["name"], dtype=object)[located]
@@ -381,6 +395,7 @@ def fault_map_figure(result):
     freeze_layout(fig)
     renderer = fig.canvas.get_renderer()
     taken = [tuple(ax.get_legend().get_window_extent(renderer).extents)]
+    taken += _marks_to_keep_clear(ax, renderer, labels_xy + [site_xy])
     if labels:  # every fault and located plane is named
         placed = place_labels(ax, np.concatenate(labels_xy), labels, fontsize=7,
                               gid="fault-label", reserved=taken)
@@ -389,6 +404,19 @@ def fault_map_figure(result):
     place_labels(ax, site_xy[:k], site_labels[:k], fontsize=7, gid="fault-label",
                  reserved=taken, optional=True)
     return fig
+
+
+def _marks_to_keep_clear(ax, renderer, anchors) -> list:
+    """Display boxes that labels must not cover: the site star, the scale bar, the north
+    arrow, the map note and a small box around every labelled point (so that one fault's name
+    never hides another's square or trace middle)."""
+    gids = {"site", "scale-bar-panel", "north-arrow", "north-label", "map-note"}
+    boxes = [tuple(a.get_window_extent(renderer).extents) for a in ax.get_children()
+             if a.get_gid() in gids]
+    pts = np.concatenate([np.reshape(a, (-1, 2)) for a in anchors]) if anchors else np.zeros((0, 2))
+    r = 3.0  # pixels around an anchor
+    boxes += [(x - r, y - r, x + r, y + r) for x, y in ax.transData.transform(pts)]
+    return boxes
 
 
 #: How many planes without a location (least margin first) may get a rank label on the map.

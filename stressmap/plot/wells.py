@@ -18,6 +18,7 @@ import numpy as np
 
 from stressmap.constants import CAUTION
 from stressmap.analyses.wells import WELL_NOTE
+from stressmap.plot.labels import freeze_layout, place_labels
 
 __all__ = ["TENDENCY_COLOURS", "profile_png", "net_png", "window_png", "path_png",
            "profile_figure", "net_figure", "window_figure", "path_figure"]
@@ -30,9 +31,12 @@ _STRESS_STYLE = {"sv": ("#1b3046", "-", "Sv"), "pp": ("#3f88c5", "--", "Pp"),
 
 def _figure(width=7.2, height=6.4):
     # matplotlib is heavy and only needed for pictures
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
-    return Figure(figsize=(width, height), dpi=110, layout="constrained")
+    fig = Figure(figsize=(width, height), dpi=110, layout="constrained")
+    FigureCanvasAgg(fig)  # a renderer to measure labels with
+    return fig
 
 
 def _footer(fig, doc):
@@ -80,7 +84,8 @@ def profile_figure(doc):
     ax.set_ylabel(f"depth ({z_unit})")
     ax.set_title("Stress with depth: central estimate at the frictional limit", fontsize=10)
     ax.grid(color="0.9")
-    ax.legend(fontsize=8, loc="lower left")
+    # stresses grow with depth down and to the right: the top right corner is always empty
+    ax.legend(fontsize=8, loc="upper right")
     _footer(fig, doc)
     return fig
 
@@ -126,9 +131,6 @@ def net_figure(doc, which: str = "slip_tendency"):
         ax.scatter(planes["x"], planes["y"], marker="^", s=42, facecolor="none",
                    edgecolor="#c2412d", linewidth=1.3, label="poles of the given planes",
                    zorder=3)
-        for name, px, py in zip(planes["name"], planes["x"], planes["y"]):
-            ax.annotate(str(name)[:24], (px, py), xytext=(4, 4), textcoords="offset points",
-                        fontsize=6.5, color="0.15")
     ax.set_xlim(-1.15, 1.15)
     ax.set_ylim(-1.15, 1.15)
     ax.axis("off")
@@ -138,7 +140,23 @@ def net_figure(doc, which: str = "slip_tendency"):
                  "equal area)", fontsize=10)
     ax.legend(fontsize=7.5, loc="lower center", bbox_to_anchor=(0.5, -0.08), frameon=False)
     _footer(fig, doc)
+    if planes:
+        _pole_labels(ax, planes)
     return fig
+
+
+def _pole_labels(ax, planes) -> None:
+    """Name each fault once, at its first pole, whole and without overlaps (a fault traced
+    in several segments has several poles; the names of one fault would otherwise pile up)."""
+    ax.figure.canvas.draw()  # the constrained layout settles over two passes (colour bar, aspect)
+    freeze_layout(ax.figure)
+    names = [str(n) for n in planes["name"]]
+    first = sorted({n: i for i, n in reversed(list(enumerate(names)))}.values())
+    xy = np.column_stack([np.asarray(planes["x"], float), np.asarray(planes["y"], float)])
+    renderer = ax.figure.canvas.get_renderer()
+    reserved = [tuple(t.get_window_extent(renderer).extents) for t in ax.texts]  # N, E, S, W
+    place_labels(ax, xy[first], [names[i] for i in first], reserved=reserved, fontsize=6.5,
+                 gid="pole-label")
 
 
 def window_figure(doc):

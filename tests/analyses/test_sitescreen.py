@@ -205,3 +205,31 @@ def test_fault_margin_curves_are_the_least_margin_over_each_faults_segments():
     assert bent["reactivation_share"] == pytest.approx(float(np.mean(fm["margin_mpa"][:, k] < 0)))
     for old in ("pore_pressure_margin_p05_mpa", "probability_margin_below_threshold"):
         assert old not in doc["planes"][0]
+
+
+@pytest.mark.parametrize("azimuth", [400.0, -361.0])
+def test_an_azimuth_beyond_a_turn_is_refused(azimuth):
+    from stressmap.analyses.sitescreen import parse_request
+
+    with pytest.raises(InputError) as err:
+        parse_request({"site": [0, 0], "depth_km": 3, "shmax_azimuth_deg": azimuth,
+                       "regime": "normal"})
+    assert err.value.problems[0]["field"] == "shmax_azimuth_deg"
+
+
+def test_a_missing_orientation_names_the_field_once():
+    from stressmap.analyses.sitescreen import parse_request, screen
+
+    with pytest.raises(InputError) as err:
+        screen(parse_request({"site": [0, 0], "depth_km": 3}))
+    messages = " ".join(p["message"] for p in err.value.problems)
+    assert "give shmax_azimuth_deg or a model" in messages and "(" not in messages
+
+
+def test_a_plane_without_a_trace_has_no_segment_number():
+    from stressmap.analyses.sitescreen import parse_request, screen
+    from stressmap.formats.screening import result_json
+
+    doc = result_json(screen(parse_request({"site": [0, 0], "depth_km": 3, "regime": "normal",
+                                            "shmax_azimuth_deg": 30, "planes": ["040/60"]})))
+    assert doc["planes"][0]["segment"] is None

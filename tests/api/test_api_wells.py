@@ -68,7 +68,8 @@ def test_bad_input_is_a_problem_naming_the_field(client, body, field):
 
 
 def test_unknown_analysis_and_format(client):
-    assert client.post(f"{API}/wells/drill", json=SITE).status_code in (400, 404, 422)
+    resp = client.post(f"{API}/wells/drill", json=SITE)
+    assert resp.status_code == 404 and resp.mimetype == "application/problem+json"
     assert client.post(f"{API}/wells/stability?format=png", json=SITE).status_code in (400, 422)
 
 

@@ -318,6 +318,24 @@ def test_controls_have_labels_and_units(page):
         assert page.get_by_label(label).count() == 1, label
 
 
+def test_panel_fits_its_width_and_graticule_is_labelled(page):
+    # every weight's value stays inside the panel (no sideways scrolling to read it)
+    over = page.evaluate("""() => { const p = document.querySelector('.panel');
+      return [p.scrollWidth - p.clientWidth, [...document.querySelectorAll('.weight output')]
+        .filter(o => o.getBoundingClientRect().right > p.getBoundingClientRect().right).length]; }""")
+    assert over == [0, 0]
+    # meridians and parallels carry their degrees (the demo plate spans about 40 W-10 E, 5-38 S)
+    labels = page.evaluate("() => [...document.querySelectorAll('.grat-label')].map(e => e.textContent)")
+    assert "20\u00b0W" in labels and "20\u00b0S" in labels, labels
+    # the legend folds away (a small screen needs the plate more than the legend) and back
+    full = page.locator("#legend").bounding_box()
+    page.locator("#legend summary").click()
+    folded = page.locator("#legend").bounding_box()
+    assert folded["height"] < 0.25 * full["height"] and folded["width"] < 0.5 * full["width"]
+    page.locator("#legend summary").press("Enter")  # keyboard too
+    assert page.locator("#legend").bounding_box()["height"] == pytest.approx(full["height"], abs=2)
+
+
 # ----------------------------------------------------------------------------- without a browser
 
 def test_page_routes_headers_and_settings(app, client):

@@ -181,3 +181,13 @@ def test_build_unreadable_json_is_a_file_problem(tmp_path, capsys, text):
     src.write_text(text)
     assert main(["build", str(src), "-o", str(tmp_path / "m")]) == 2
     assert "not valid JSON" in capsys.readouterr().err
+
+
+def test_predict_refuses_to_overwrite_its_points_file(tmp_path, coarse_demo_dir, capsys):
+    from stressmap.cli import main
+
+    pts = tmp_path / "wells.csv"
+    pts.write_text("lon,lat\n-15,-20\n")
+    assert main(["predict", str(coarse_demo_dir), "--points", str(pts), "-o", str(pts)]) == 2
+    assert "overwritten" in capsys.readouterr().err
+    assert pts.read_text() == "lon,lat\n-15,-20\n"

@@ -200,3 +200,26 @@ def test_errors_name_the_flag_that_set_the_value(capsys):
     assert main([*BASE, *ORIENT, "--plane", "040/60", "--friction-range", "0.8,0.5"]) == 2
     err = capsys.readouterr().err
     assert "--friction-range" in err and "friction_range" not in err
+
+
+def test_density_profile_errors_name_the_file_columns_not_options(tmp_path, capsys):
+    # a file's column is reported as that column, even where an option of a similar name exists
+    # (density_kg_m3 is both a profile column and the destination of --density-kg-m3)
+    wrong = tmp_path / "wrong.csv"
+    wrong.write_text("lon,lat\n1,2\n")
+    assert main(["screen", "--site=-15,-20", "--depth-km", "3", *ORIENT,
+                 "--density-profile", str(wrong)]) == 2
+    err = capsys.readouterr().err
+    assert "lacks column(s) top_km, density_kg_m3" in err
+    assert "field density_kg_m3: required column missing" in err
+    assert "--density-kg-m3" not in err
+    bad = tmp_path / "bad.csv"
+    bad.write_text("top_km,density_kg_m3\n0,2400\n1,abc\n")
+    assert main(["screen", "--site=-15,-20", "--depth-km", "3", *ORIENT,
+                 "--density-profile", str(bad)]) == 2
+    err = capsys.readouterr().err
+    assert "row 2, field density_kg_m3: density_kg_m3 must be a number" in err
+    # the option itself is still named as the option
+    assert main(["screen", "--site=-15,-20", "--depth-km", "3", *ORIENT,
+                 "--density-kg-m3", "-5"]) == 2
+    assert "field --density-kg-m3" in capsys.readouterr().err

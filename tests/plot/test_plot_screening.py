@@ -247,3 +247,71 @@ def test_map_from_planes_only_is_not_empty(crowded):
     (note,) = _by_gid(ax, "map-note")
     assert "10 plane(s) without a location" in note.get_text()
     assert len(_by_gid(ax, "fault-label")) >= 5  # the first ranks, where there is room
+
+
+@pytest.fixture(scope="module")
+def logged_at_site():
+    """Two image-log plane sets logged in the well at the site (one place, two margins) and a
+    trace passing by: the situation of the packaged demo faults."""
+    faults = {"type": "FeatureCollection", "features": [
+        {"type": "Feature", "properties": {"name": "set one, a long name", "strike_deg": 60,
+                                           "dip_deg": 45},
+         "geometry": {"type": "Point", "coordinates": [-15.0, -20.0]}},
+        {"type": "Feature", "properties": {"name": "set two, a long name", "strike_deg": 150,
+                                           "dip_deg": 80},
+         "geometry": {"type": "Point", "coordinates": [-15.0, -20.0]}},
+        {"type": "Feature", "properties": {"name": "trace near the site", "dip_deg": 85,
+                                           "dip_direction_deg": 90},
+         "geometry": {"type": "LineString", "coordinates": [[-14.99, -20.05], [-14.99, -19.95]]}}]}
+    req = parse_request({"site": [-15.0, -20.0], "depth_km": 3.0, "regime": "strike-slip",
+                         "shmax_azimuth_deg": 165.0, "faults": faults})
+    return screen(req)
+
+
+def test_fault_map_labels_keep_the_site_and_the_squares_clear(logged_at_site):
+    from stressmap.plot.labels import text_box, label_boxes_overlap
+
+    res = logged_at_site
+    fig = ps.fault_map_figure(res)
+    ax = fig.axes[0]
+    fig.canvas.draw()
+    renderer = fig.canvas.get_renderer()
+    labels = [text_box(t) for t in _by_gid(ax, "fault-label")]
+    assert len(labels) == 3
+    (site,) = _by_gid(ax, "site")
+    (squares,) = _by_gid(ax, "fault-planes")
+    marks = [tuple(site.get_window_extent(renderer).extents)]
+    marks += [(x - 3, y - 3, x + 3, y + 3) for x, y in ax.transData.transform(squares.get_offsets())]
+    for box in labels:
+        assert not label_boxes_overlap([box] + marks[:1]), "a label covers the site star"
+        assert not any(label_boxes_overlap([box, m]) for m in marks[1:]), "a label covers a square"
+    # both sets sit on the site: the one closer to failure is drawn last (on top), above the star
+    located = res.planes["kind"] != "trace segment"
+    least = float(np.min(res.planes["pore_pressure_margin_mpa"][located]))
+    assert squares.get_array()[-1] == pytest.approx(least)
+    assert squares.get_zorder() > site.get_zorder()
+
+
+def test_fault_map_palest_trace_and_shmax_bar_stand_out(logged_at_site):
+    # every trace has a casing darker than the axes background, so the largest margin (the
+    # palest colour of the scale) is still seen; the SHmax bar differs in hue from every margin
+    from matplotlib.colors import to_rgb, rgb_to_hsv
+
+    fig = ps.fault_map_figure(logged_at_site)
+    ax = fig.axes[0]
+    (casing,) = _by_gid(ax, "fault-trace-casing")
+    (traces,) = _by_gid(ax, "fault-traces")
+    assert len(casing.get_segments()) == len(traces.get_segments())
+    assert casing.get_zorder() < traces.get_zorder()
+    assert max(casing.get_linewidths()) > max(traces.get_linewidths())
+
+    def lum(c):
+        r, g, b = to_rgb(c)
+        return 0.2126 * r + 0.7152 * g + 0.0722 * b  # relative luminance weights (sRGB, ITU-R BT.709)
+
+    assert lum(ax.get_facecolor()) - lum(casing.get_edgecolor()[0]) > 0.4
+    (bar,) = _by_gid(ax, "shmax-direction")
+    bar_hue = rgb_to_hsv(to_rgb(bar.get_color()))[0]
+    cmap = traces.get_cmap()
+    hues = [rgb_to_hsv(cmap(v)[:3])[0] for v in np.linspace(0, 1, 11)]
+    assert min(min(abs(bar_hue - h), 1 - abs(bar_hue - h)) for h in hues) > 0.25
