@@ -23,6 +23,7 @@ from stressmap_api.problems import ApiProblem
 from stressmap_api.store import document_digest
 
 from stressmap.formats.indicators import indicators_from_csv_text, indicators_from_geojson
+from stressmap import validate
 from stressmap.errors import InputError, problem
 from stressmap.geo import grid
 from stressmap.model.plate import parse_plate
@@ -279,21 +280,10 @@ def _parse_feature_points(fc: dict, max_points: int):
 
 
 def _parse_bbox(value, field: str) -> tuple[float, float, float, float]:
-    if not (isinstance(value, list) and len(value) == 4 and all(_is_number(v) for v in value)):
-        raise InputError(f"{field} must be [W, S, E, N] in degrees",
-                         [problem(f"expected four finite numbers [W, S, E, N], got {_short(value)}",
-                                  field=field)])
-    w, s, e, n = (float(v) for v in value)
-    probs = []
-    if not -90.0 <= s < n <= 90.0:
-        probs.append(problem(f"south {s:g} must be below north {n:g}, both within [-90, 90]",
-                             field=field))
-    if not (-180.0 <= w <= 180.0 and -180.0 <= e <= 180.0) or w == e:
-        probs.append(problem(f"west {w:g} and east {e:g} must differ and lie within [-180, 180] "
-                             "(west > east means the box crosses the antimeridian)", field=field))
-    if probs:
-        raise InputError(f"{field} is not a valid bounding box", probs)
-    return w, s, e, n
+    probs: list = []
+    box = validate.bbox(value, field, probs)
+    validate.raise_problems(probs, f"{field} is not a valid bounding box")
+    return box
 
 
 def parse_bbox_text(text: str | None, field: str = "bbox") -> tuple[float, float, float, float]:
@@ -307,14 +297,10 @@ def parse_bbox_text(text: str | None, field: str = "bbox") -> tuple[float, float
     if not text:
         raise InputError(f"{field} is required: W,S,E,N in degrees",
                          [problem("missing; give W,S,E,N in degrees", field=field)])
-    try:
-        values = [float(v) for v in text.split(",")]
-    except ValueError:
-        raise InputError(f"{field} must be four numbers W,S,E,N",
-                         [problem(f"cannot read {text[:60]!r} as W,S,E,N", field=field)]) from None
-    if not all(math.isfinite(v) for v in values):
-        values = []
-    return _parse_bbox(values, field)
+    probs: list = []
+    box = validate.bbox(text, field, probs, text=True)
+    validate.raise_problems(probs, f"{field} is not a valid bounding box")
+    return box
 
 
 #: Smallest grid spacing accepted (km); below it the node count overflows (5e-324 km: 1/0).
@@ -322,15 +308,11 @@ MIN_SPACING_KM = 0.001
 
 
 def parse_spacing(value, field: str) -> float:
-    if not _is_number(value) or value <= 0:
-        raise InputError(f"{field} must be a positive number of km",
-                         [problem(f"expected a positive number (km), got {_short(value)}",
-                                  field=field)])
-    if value < MIN_SPACING_KM:
-        raise InputError(f"{field} is below {MIN_SPACING_KM:g} km",
-                         [problem(f"spacing {value:g} km is finer than {MIN_SPACING_KM:g} km",
-                                  field=field)])
-    return float(value)
+    """A grid spacing in km, at least :data:`MIN_SPACING_KM` (finer overflows the node count)."""
+    probs: list = []
+    spacing = validate.number(value, field, probs, low=MIN_SPACING_KM)
+    validate.raise_problems(probs)
+    return float(spacing)
 
 
 def grid_size(bbox, spacing_km: float) -> int:
@@ -443,19 +425,14 @@ def parse_spacing_text(text: str | None, field: str = "spacing_km") -> float:
 
 
 def parse_weights(value) -> dict | None:
-    """``weights``: null or an object of load group -> finite number."""
-    if value is None:
-        return None
-    if not isinstance(value, dict):
-        raise InputError("weights must be an object of load group -> number",
-                         [problem(f"expected an object, got {type(value).__name__}",
-                                  field="weights")])
-    probs = [problem(f"expected a finite number within +-{MAX_BOUND:g}, got {_short(v)}",
-                     field=f"weights.{k}"[:120])
-             for k, v in value.items() if not (_is_number(v) and abs(v) <= MAX_BOUND)]
-    if probs:
-        raise InputError("weights must be finite numbers", probs)
-    return {str(k): float(v) for k, v in value.items()}
+    """``weights``: null or an object of load group -> finite number within +-MAX_BOUND."""
+    probs: list = []
+    out = validate.weights(value, "weights", probs)
+    for k, v in (out or {}).items():
+        validate.number(v, f"weights.{k}"[:120], probs, name=k[:60], low=-MAX_BOUND,
+                        high=MAX_BOUND)
+    validate.raise_problems(probs, None if len(probs) == 1 else "weights must be finite numbers")
+    return out
 
 
 def parse_weights_text(text: str | None) -> dict | None:
@@ -470,18 +447,11 @@ def parse_weights_text(text: str | None) -> dict | None:
     """
     if not text:
         return None
-    out = {}
-    for item in text.split(","):
-        name, sep, raw = item.replace("=", ":").partition(":")
-        try:
-            value = float(raw)
-            if not (sep and name.strip() and math.isfinite(value) and abs(value) <= MAX_BOUND):
-                raise ValueError
-        except ValueError:
-            raise InputError("weights must read group:value,group:value",
-                             [problem(f"cannot read {item[:60]!r} as group:value",
-                                      field="weights")]) from None
-        out[name.strip()] = value
+    probs: list = []
+    out = validate.weights_text(text, "weights", probs)
+    for k, v in (out or {}).items():
+        validate.number(v, "weights", probs, name=k[:60], low=-MAX_BOUND, high=MAX_BOUND)
+    validate.raise_problems(probs, "weights must read group:value,group:value")
     return out
 
 
@@ -519,21 +489,20 @@ def choice(value, options, field: str) -> str:
     """One of ``options`` (case-insensitive); None gives the first (the default)."""
     if value is None:
         return options[0]
-    if not isinstance(value, str) or value.lower() not in options:
-        raise InputError(f"{field} must be one of {', '.join(options)}",
-                         [problem(f"unknown {field} {_short(value)}; use {', '.join(options)}",
-                                  field=field)])
-    return value.lower()
+    probs: list = []
+    out = validate.choice(value, tuple(options), field, probs, casefold=True)
+    validate.raise_problems(probs)
+    return out
 
 
 def flag(value, field: str) -> bool:
     """true or false (None: false)."""
     if value is None:
         return False
-    if not isinstance(value, bool):
-        raise InputError(f"{field} must be true or false",
-                         [problem(f"expected a boolean, got {_short(value)}", field=field)])
-    return value
+    probs: list = []
+    out = validate.boolean(value, field, probs)
+    validate.raise_problems(probs)
+    return out
 
 
 def number(value, field: str, default=None, *, low: float | None = None,
@@ -542,29 +511,23 @@ def number(value, field: str, default=None, *, low: float | None = None,
     ``default`` when one is set."""
     if value is None and default is not None:
         return default
-    ok = _is_number(value) and (low is None or value >= low) and (high is None or value <= high) \
-        and (not positive or value > 0)
-    if not ok:
-        span = " > 0" if positive else ""
-        if low is not None or high is not None:
-            span += f" within [{'-inf' if low is None else f'{low:g}'}, " \
-                    f"{'inf' if high is None else f'{high:g}'}]"
-        raise InputError(f"{field} must be a finite number{span}",
-                         [problem(f"expected a finite number{span}, got {_short(value)}",
-                                  field=field)])
-    return float(value)
+    probs: list = []
+    if positive and (low is None or low <= 0):
+        out = validate.number(value, field, probs, low=0.0, low_inclusive=False, high=high)
+    else:
+        out = validate.number(value, field, probs, low=low, high=high)
+    validate.raise_problems(probs)
+    return float(out)
 
 
 def count(value, field: str, default: int, low: int = 0, high: int | None = None) -> int:
     """A whole number in [low, high] (None gives ``default``)."""
     if value is None:
         value = default
-    if isinstance(value, bool) or not isinstance(value, int) or value < low or (
-            high is not None and value > high):
-        span = f"{low} to {high}" if high is not None else f"at least {low}"
-        raise InputError(f"{field} must be a whole number, {span}",
-                         [problem(f"got {_short(value)}", field=field)])
-    return int(value)
+    probs: list = []
+    out = validate.number(value, field, probs, low=low, high=high, integer=True)
+    validate.raise_problems(probs)
+    return int(out)
 
 
 def parse_model_id(value, field: str = "model_id") -> str:

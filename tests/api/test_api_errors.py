@@ -81,7 +81,7 @@ def test_malformed_json_is_400(make_client, model_id, raw):
         {"type": "Feature", "properties": {}, "geometry": {"type": "LineString",
                                                            "coordinates": [[0, 0], [1, 1]]}}]}},
      "points.features[0].geometry", "Point"),
-    ({"points": [[1.0, 2.0]], "weights": {"ridge": "strong"}}, "weights.ridge", "finite number"),
+    ({"points": [[1.0, 2.0]], "weights": {"ridge": "strong"}}, "weights.ridge", "must be a number"),  # stressmap.validate wording
     ({"points": [[1.0, 2.0]], "weights": [1, 2]}, "weights", "object"),
     ({"points": [[1.0, 2.0]], "format": "xlsx"}, "format", "geojson, csv, netcdf, png"),
     ({"points": [[1.0, 2.0]], "colour": "red"}, "colour", "unknown member"),
@@ -89,7 +89,7 @@ def test_malformed_json_is_400(make_client, model_id, raw):
     ({"region": {"bbox": [0, 0, 10]}, "spacing_km": 50}, "region.bbox", "four finite numbers"),
     ({"region": {"bbox": [0, 10, 10, 0]}, "spacing_km": 50}, "region.bbox", "below north"),
     ({"region": {"bbox": [-20, -30, 0, -10]}}, "region.spacing_km", "missing"),
-    ({"region": {"bbox": [-20, -30, 0, -10], "spacing_km": -5}}, "region.spacing_km", "positive"),
+    ({"region": {"bbox": [-20, -30, 0, -10], "spacing_km": -5}}, "region.spacing_km", ">= 0.001"),
     ({"region": {"polygon": {"type": "Point", "coordinates": [0, 0]}, "spacing_km": 50}},
      "region.polygon", "Polygon"),
     ({"region": {"polygon": {"type": "Polygon", "coordinates": [[[0, 0], [1, 1], [1, 0], [0, 1],
