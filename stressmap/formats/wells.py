@@ -15,14 +15,12 @@ import math
 
 import numpy as np
 
+from stressmap.formats.csvsafe import csv_cell
 from stressmap.units import convert_stress_table, km_to_ft, mpa_to_psi
 
 __all__ = ["csv_table", "in_units", "json_document"]
 
 _CHANGE_COLUMNS = ("injection_", "depletion_")
-_FORMULA_PREFIXES = ("=", "+", "-", "@", "\t", "\r")
-
-
 def _site_units(site: dict) -> dict:
     depth = site["depth_km"]
     pressures = {k: v for k, v in site.items() if k.endswith("_mpa")}
@@ -88,8 +86,7 @@ def _cell(value):
     if isinstance(value, (float, np.floating)):
         v = float(value)
         return "" if not math.isfinite(v) else repr(round(v, 6))
-    text = str(value)
-    return "'" + text if text.startswith(_FORMULA_PREFIXES) else text
+    return csv_cell(str(value))
 
 
 def _rows(doc: dict) -> tuple[list[str], list[np.ndarray]]:
