@@ -34,9 +34,10 @@ and an indicator table.
 from __future__ import annotations
 
 import logging
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
+from scipy.optimize import minimize
 
 from stressmap.errors import InputError, problem
 from stressmap.geo.circular import random_misfit_significance
@@ -214,7 +215,6 @@ class _Problem:
 
 def _minimise(prob: _Problem, kappa, starts):
     """Best L-BFGS-B result over the given starts (array (S, F)). Returns (x, f)."""
-    from scipy.optimize import minimize
 
     fun = prob.fun(kappa)
     best_x, best_f = None, np.inf
@@ -336,7 +336,6 @@ def _polish(prob: _Problem, kappa, x, cos2o=None, sin2o=None):
     a quasi-Newton polish from its answer ends at a proper stationary point, usually within a
     few iterations.
     """
-    from dataclasses import replace
 
     out = np.empty_like(x)
     for j in range(x.shape[0]):

@@ -18,6 +18,7 @@ and by province, and the share of regime agreements.
 from __future__ import annotations
 
 import numpy as np
+from scipy.stats import binomtest
 
 from stressmap.constants import CAUTION
 from stressmap.geo import circular
@@ -65,7 +66,6 @@ def misfit_statistics(misfit, weight=None, regime_agreement=None) -> dict:
     >>> s["count"], s["weighted_mean_abs_misfit_deg"], s["fraction_within_30_deg"]
     (3, 27.5, 0.6666666666666666)
     """
-    from scipy.stats import binomtest
 
     m = np.asarray(misfit, dtype=float)
     w = np.ones_like(m) if weight is None else np.asarray(weight, dtype=float)

@@ -15,8 +15,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from stressmap.analyses import screening as sc
 from stressmap import validate
+from stressmap.analyses import screening as sc
 from stressmap.errors import InputError, problem
 
 __all__ = ["DepthProfile", "depth_grid", "stress_profile", "MAX_DEPTHS", "MAX_PROFILE_SAMPLES"]

@@ -34,6 +34,7 @@ right-hand-rule dip direction agrees with the stated dip direction.
 from __future__ import annotations
 
 import numpy as np
+from pyproj import Geod
 
 from stressmap.constants import EARTH_RADIUS_M
 from stressmap.errors import InputError, problem
@@ -338,7 +339,6 @@ def segment_azimuth_deg(lon1, lat1, lon2, lat2):
     >>> float(segment_azimuth_deg(0.01, 0.0, 0.0, 0.0).round(6))   # westward
     270.0
     """
-    from pyproj import Geod
 
     geod = Geod(a=EARTH_RADIUS_M, f=0.0)
     lon1, lat1, lon2, lat2 = np.broadcast_arrays(_f(lon1), _f(lat1), _f(lon2), _f(lat2))

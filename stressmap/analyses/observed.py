@@ -35,6 +35,8 @@ xarray Dataset (GeoJSON and netCDF: :mod:`stressmap.formats.observed`).
 from __future__ import annotations
 
 import numpy as np
+import xarray as xr
+from scipy.spatial import cKDTree
 from scipy.stats import t as student_t
 
 from stressmap.constants import CAUTION, EARTH_RADIUS_KM
@@ -177,7 +179,6 @@ def smooth_at(node_lon, node_lat, lon, lat, shmax_deg, weight=None, *, radius_km
     >>> round(float(out["shmax_azimuth_deg"][0]), 6) % 180.0, out["count"].tolist(), out["status"].tolist()
     (0.0, [3, 0], [0, 1])
     """
-    from scipy.spatial import cKDTree
 
     if not (np.isfinite(radius_km) and radius_km > 0):
         raise InputError("radius_km must be a positive number",
@@ -262,7 +263,6 @@ def observed_grid(indicators, bbox, radius_km, spacing_km=None, min_count=DEFAUL
     min_count, max_halfwidth_deg :
         Acceptance rules (see :func:`smooth_at`).
     """
-    import xarray as xr
 
     try:
         radius_km = float(radius_km)

@@ -14,6 +14,7 @@ for its cumulative margin curve.
 from __future__ import annotations
 
 import numpy as np
+from pyproj import Geod
 
 from stressmap.analyses import faults as fl
 from stressmap.analyses import screening as sc
@@ -83,7 +84,6 @@ def indicator_spread_deg(indicators, lon: float, lat: float, radius_km: float = 
     -------
     sigma_deg, description, info
     """
-    from pyproj import Geod
 
 
     ilon = indicators["lon"].to_numpy(float)

@@ -28,12 +28,16 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from stressmap import validate
 from stressmap.analyses import screening as sc
 from stressmap.analyses import sitescreen
 from stressmap.analyses.depth_profile import depth_grid, stress_profile
 from stressmap.analyses.faults import fault_tendencies, rank_order
 from stressmap.analyses.stereonet import pole_of_plane, project_pole, tendency_net
-from stressmap.analyses.stress_path import pressure_change_to_failure, stress_path_coefficient
+from stressmap.analyses.stress_path import (
+    pressure_change_to_failure,
+    stress_path_coefficient,
+)
 from stressmap.analyses.wellbore import (
     borehole_stress,
     breakout_width_deg,
@@ -43,7 +47,6 @@ from stressmap.analyses.wellbore import (
     shmax_from_breakout_mpa,
 )
 from stressmap.constants import CAUTION
-from stressmap import validate
 from stressmap.errors import InputError, problem
 from stressmap.units import check_units
 

@@ -33,7 +33,11 @@ from stressmap.io.faults import read_fault_file
 from stressmap.io.files import write_atomic
 from stressmap.io.indicators import read_indicators
 from stressmap.io.networkdir import read_any_model
-from stressmap.io.outputs import write_csv_with_sidecars, write_geojson, write_geopackage
+from stressmap.io.outputs import (
+    write_csv_with_sidecars,
+    write_geojson,
+    write_geopackage,
+)
 from stressmap.io.tables import read_csv_table
 from stressmap.plot import screening as plot_screening
 from stressmap.plot.margins import margin_curves_png

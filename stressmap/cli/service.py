@@ -14,7 +14,11 @@ from pathlib import Path
 
 from stressmap_api import create_app, load_config
 from stressmap_api.demo import ensure_demo, example_points, example_requests
-from stressmap_api.demo_network import demo_network_document, ensure_demo_network, example_network_requests
+from stressmap_api.demo_network import (
+    demo_network_document,
+    ensure_demo_network,
+    example_network_requests,
+)
 from stressmap_api.jobs import get_jobs
 from stressmap_api.network_store import get_network_store
 from stressmap_api.server import create_server

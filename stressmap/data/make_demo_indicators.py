@@ -22,8 +22,8 @@ import numpy as np
 
 from stressmap.formats.indicators import indicators_csvt
 from stressmap.geo import focal
-from stressmap.io.outputs import write_csv_with_sidecars
 from stressmap.geo.sphere import great_circle_distance_km
+from stressmap.io.outputs import write_csv_with_sidecars
 from stressmap.model import build_model, predict_points
 
 __all__ = ["make_demo_indicators", "demo_id", "SEED", "COUNTS"]

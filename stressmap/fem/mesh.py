@@ -38,6 +38,8 @@ import time
 from dataclasses import dataclass, field
 
 import numpy as np
+import shapely
+from scipy.spatial import Delaunay, cKDTree
 
 from stressmap.constants import EARTH_RADIUS_KM
 from stressmap.errors import InputError, problem
@@ -159,7 +161,6 @@ def _narrow_places(ring_xyz: np.ndarray, edge_km: float):
     straight distance; the width there is their straight distance. Elements no larger than the
     width keep the two sides from crowding each other's triangles.
     """
-    from scipy.spatial import cKDTree
 
     a = ring_xyz
     b = np.roll(ring_xyz, -1, axis=0)
@@ -185,7 +186,6 @@ class _Size:
     """Target edge length: on the sphere (km) and in the stereographic plane (plane km)."""
 
     def __init__(self, plate, edge_km: float, ring_xyz: np.ndarray, centre: np.ndarray):
-        import shapely
 
         self.edge = float(edge_km)
         self.grading = float(plate.mesh.get("grading", 0.25))
@@ -221,7 +221,6 @@ class _Size:
         self.tree = None
         self.reach = 0.0
         if len(self.vertex_xyz):
-            from scipy.spatial import cKDTree
 
             self.tree = cKDTree(self.vertex_xyz)
             # beyond this chord no source can go below edge_km
@@ -233,7 +232,6 @@ class _Size:
         self.min_km = min(fines)
 
     def sphere_km(self, xyz: np.ndarray, plane=None) -> np.ndarray:
-        import shapely
 
         h = np.full(xyz.shape[:-1], self.edge)
         g = self.grading
@@ -370,8 +368,6 @@ def _interior_points(poly, bxy, size: _Size, base: float):
     subdivided for finer levels) only where the size function, which changes at most by
     ``lip`` per unit distance, can reach the level's band.
     """
-    import shapely
-    from scipy.spatial import cKDTree
 
     x0, y0, x1, y1 = poly.bounds
     rmax = np.sqrt(max(x0 * x0, x1 * x1) + max(y0 * y0, y1 * y1)) / _R
@@ -440,7 +436,6 @@ def _interior_points(poly, bxy, size: _Size, base: float):
 
 def _encroached(bxy, pts):
     """Boundary-edge encroachment: (edges encroached by boundary nodes, interior points to drop)."""
-    from scipy.spatial import cKDTree
 
     nb = len(bxy)
     a = bxy
@@ -469,8 +464,6 @@ def _encroached(bxy, pts):
 
 
 def _delaunay_inside(p, poly):
-    import shapely
-    from scipy.spatial import Delaunay
 
     tri = Delaunay(p).simplices.astype(np.int64)
     c = p[tri].mean(axis=1)
@@ -496,8 +489,6 @@ def _smooth(p, nfixed, size: _Size, poly, iterations: int, neighbours: int = 6):
     lattice at the target spacing move (the boundary zone and level changes); the rest are at
     equilibrium.
     """
-    import shapely
-    from scipy.spatial import cKDTree
 
     n = len(p)
     p = p.copy()
@@ -654,8 +645,6 @@ def _plane_triangulation(ring_xyz, centre, size, edge, smoothing_iterations):
     Returns the boundary nodes (xyz, arc index, fraction along the arc), all plane points
     (boundary first) and the triangles, unused nodes removed.
     """
-    # shapely is only needed while meshing
-    import shapely
 
     bxyz, barc, bfrac = _boundary_nodes(ring_xyz, size)
     bxy = np.column_stack(_to_plane(bxyz, centre))
@@ -709,7 +698,6 @@ def _mesh_stats(plate, xyz, tri, area, ring_xyz, barc, bfrac, edge) -> dict:
     sharp_nodes = np.flatnonzero((bfrac == 0.0) & sharp[barc])
     near_corner = np.isin(tri, sharp_nodes).any(axis=1)
     if len(sharp_nodes):
-        from scipy.spatial import cKDTree
 
         zone = 2.0 * np.sin(CORNER_ZONE_EDGES * edge / _R / 2.0)
         hit = cKDTree(xyz[sharp_nodes]).query(xyz, distance_upper_bound=zone)[0] < zone
@@ -755,7 +743,6 @@ def _sharpness_deg(ring_xyz):
 
 
 def _assign_provinces(plate, xyz, tri, centre):
-    import shapely
 
     m = len(tri)
     prov = np.full(m, -1, dtype=np.int64)

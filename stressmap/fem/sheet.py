@@ -40,6 +40,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
+from scipy.sparse.csgraph import reverse_cuthill_mckee
 
 __all__ = [
     "Sheet",
@@ -292,7 +293,6 @@ def _splu_solver(kff):
     reverse Cuthill-McKee pre-permutation. The pre-permutation makes the minimum-degree ordering
     independent of the mesher's node numbering: on some numberings SuperLU's ordering alone ran
     for minutes where it needs a second."""
-    from scipy.sparse.csgraph import reverse_cuthill_mckee
 
     kff = kff.tocsr()
     perm = reverse_cuthill_mckee(kff, symmetric_mode=True)

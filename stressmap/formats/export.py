@@ -13,7 +13,12 @@ from __future__ import annotations
 
 import numpy as np
 
-from stressmap.formats.geojson import feature_collection, plain, round_array, round_coord
+from stressmap.formats.geojson import (
+    feature_collection,
+    plain,
+    round_array,
+    round_coord,
+)
 from stressmap.formats.netcdf import netcdf_bytes
 from stressmap.formats.points import plain_properties
 from stressmap.formats.table import frame_csv, frame_csvt

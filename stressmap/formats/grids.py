@@ -27,8 +27,8 @@ import numpy as np
 import tifffile
 import xarray as xr
 
-from stressmap.formats.hdf5lock import NETCDF_LOCK
 from stressmap.errors import InputError, problem
+from stressmap.formats.hdf5lock import NETCDF_LOCK
 from stressmap.geo.raster import Raster, as_raster
 
 __all__ = ["ROLES", "MAX_GRID_CELLS", "sniff", "raster_from_bytes", "raster_from_dataset",

@@ -9,6 +9,7 @@ antimeridian or over a pole need no special case.
 from __future__ import annotations
 
 import numpy as np
+from scipy.spatial import cKDTree
 
 from stressmap.geo import sphere
 
@@ -70,7 +71,6 @@ def near_pairs(a, b, reach_rad: float, step_rad: float | None = None) -> np.ndar
     >>> near_pairs(xyz[:, 0], xyz[:, 1], 0.0).tolist()
     [[0, 1]]
     """
-    from scipy.spatial import cKDTree
 
     step = float(step_rad if step_rad is not None else max(reach_rad, np.radians(0.5)))
     pts, arc = arc_samples(a, b, step)

@@ -8,6 +8,7 @@ functions are vectorised and reduce along ``axis``; NaN entries are ignored (the
 from __future__ import annotations
 
 import numpy as np
+from scipy.special import ndtr
 
 __all__ = [
     "axial_difference_deg",
@@ -203,7 +204,6 @@ def random_misfit_significance(abs_misfit_deg, weights=None):
     >>> round(float(z), 9), round(float(p), 4)    # one standard error below 45 -> p = 0.1587
     (1.0, 0.1587)
     """
-    from scipy.special import ndtr
 
     a = np.abs(np.asarray(abs_misfit_deg, dtype=float))
     w = np.ones_like(a) if weights is None else np.broadcast_to(np.asarray(weights, float), a.shape)

@@ -26,6 +26,7 @@ import math
 
 import numpy as np
 import shapely
+import xarray as xr
 
 from stressmap import validate
 from stressmap.constants import EARTH_RADIUS_KM
@@ -232,7 +233,6 @@ def mask_dataset(ds, keep_lat_lon: np.ndarray):
     >>> out["v"].values.tolist(), out["inside"].values.tolist()
     ([[1.0, nan]], [[1, 0]])
     """
-    import xarray as xr  # only callers holding Datasets reach here
 
     keep = xr.DataArray(np.asarray(keep_lat_lon, dtype=bool), dims=("lat", "lon"),
                         coords={"lat": ds["lat"], "lon": ds["lon"]})

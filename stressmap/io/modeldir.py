@@ -15,8 +15,8 @@ import uuid
 from pathlib import Path
 
 from stressmap.errors import NotFoundError, StorageError
-from stressmap.formats.hdf5lock import NETCDF_LOCK
 from stressmap.formats import jsontext
+from stressmap.formats.hdf5lock import NETCDF_LOCK
 from stressmap.model import BuiltModel
 
 __all__ = ["write_model", "read_model", "MODEL_FILES", "fsync_dir"]

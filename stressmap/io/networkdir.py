@@ -24,7 +24,13 @@ from concurrent.futures import ProcessPoolExecutor, as_completed
 from pathlib import Path
 
 from stressmap import __version__
-from stressmap.errors import InputError, ModelValidationError, NotFoundError, StorageError, problem
+from stressmap.errors import (
+    InputError,
+    ModelValidationError,
+    NotFoundError,
+    StorageError,
+    problem,
+)
 from stressmap.io.modeldir import MODEL_FILES, fsync_dir, read_model, write_model
 from stressmap.model.build import build_model
 from stressmap.model.network import check_network, document_key, plate_documents

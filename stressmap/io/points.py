@@ -10,7 +10,11 @@ from pathlib import Path
 import numpy as np
 
 from stressmap.errors import InputError, problem
-from stressmap.formats.points import points_from_csv_text, points_from_frame, points_from_geojson
+from stressmap.formats.points import (
+    points_from_csv_text,
+    points_from_frame,
+    points_from_geojson,
+)
 
 __all__ = ["read_points", "points_from_geojson", "VECTOR_SUFFIXES"]
 

@@ -36,6 +36,9 @@ import json
 from dataclasses import dataclass, field
 
 import numpy as np
+from scipy.sparse import coo_matrix
+from scipy.sparse.csgraph import connected_components
+from scipy.spatial import cKDTree
 
 from stressmap.constants import EARTH_RADIUS_KM
 from stressmap.errors import ModelValidationError, problem
@@ -239,8 +242,6 @@ def _check_params(doc: dict, probs: list) -> tuple[dict, dict]:
 
 def _clusters(n: int, pairs: np.ndarray) -> np.ndarray:
     """Connected-component label of each of n items joined by index pairs."""
-    from scipy.sparse import coo_matrix
-    from scipy.sparse.csgraph import connected_components
 
     pairs = np.asarray(pairs, dtype=np.int64).reshape(-1, 2)
     g = coo_matrix((np.ones(len(pairs)), (pairs[:, 0], pairs[:, 1])), shape=(n, n))
@@ -258,7 +259,6 @@ def _arcs_of(lines: list) -> tuple:
 
 def _near_arcs(points, a, b, reach_rad: float):
     """Candidate (point, arc) pairs within ``reach_rad``, with exact distance, foot and t."""
-    from scipy.spatial import cKDTree
 
     step = max(reach_rad, np.radians(0.5))
     samples, arc = arcs.arc_samples(a, b, step)

@@ -14,6 +14,7 @@ points on no plate are flagged (``inside`` False, ``plate`` ``""``), never extra
 from __future__ import annotations
 
 import numpy as np
+import xarray as xr
 
 from stressmap.errors import InputError, problem
 from stressmap.model.built import BuiltModel
@@ -40,7 +41,6 @@ def merge_plates(models: dict, name: str = "network") -> BuiltModel:
     ...     print(err.message)
     the network has no built plate
     """
-    import xarray as xr
 
     if not models:
         raise InputError("the network has no built plate", [problem("no plate is built", field="plates")])

@@ -14,11 +14,13 @@ from __future__ import annotations
 import logging
 
 import numpy as np
+import xarray as xr
+from scipy.spatial import cKDTree
 
 from stressmap.constants import CAUTION
 from stressmap.errors import InputError, problem
-from stressmap.geo.sphere import local_frame
 from stressmap.geo.grid import regular_grid, wrap_lon
+from stressmap.geo.sphere import local_frame
 from stressmap.geo.tensor import describe
 from stressmap.model.built import MAX_GRID_POINTS, BuiltModel
 
@@ -32,7 +34,6 @@ def _geometry(model: BuiltModel):
     """Cached unit node vectors, triangles, inverse vertex matrices, centroid tree, unit fields."""
     cache = model._cache
     if "geom" not in cache:
-        from scipy.spatial import cKDTree
 
         f = model.fields
         lon = np.radians(np.asarray(f["lon"].values, float))
@@ -238,7 +239,6 @@ def predict_points(model: BuiltModel, lon, lat, weights=None):
     shmax_azimuth_deg, regime (str), regime_index (A-phi), shape_ratio, max_shear_mpa.
     Points outside the plate have ``inside = False``, NaN values and regime "".
     """
-    import xarray as xr
 
     lon, lat = _check_lonlat(lon, lat)
     inside, s = stress_at(model, lon, lat, weights)
@@ -277,7 +277,6 @@ def predict_grid(model: BuiltModel, bbox, spacing_km, weights=None):
     refused, -180..180 or 0..360 longitudes, at most ``MAX_GRID_POINTS`` nodes) are those of
     :func:`stressmap.geo.grid.regular_grid`.
     """
-    import xarray as xr
 
     lons, lats = regular_grid(bbox, spacing_km, max_nodes=MAX_GRID_POINTS)
     n_lat, n_lon = lats.size, lons.size

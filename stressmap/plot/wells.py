@@ -16,8 +16,8 @@ import textwrap
 
 import numpy as np
 
-from stressmap.constants import CAUTION
 from stressmap.analyses.wells import WELL_NOTE
+from stressmap.constants import CAUTION
 from stressmap.plot.labels import freeze_layout, place_labels
 
 __all__ = ["TENDENCY_COLOURS", "profile_png", "net_png", "window_png", "path_png",

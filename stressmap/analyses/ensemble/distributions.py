@@ -12,6 +12,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+from scipy.stats import truncnorm
 
 from stressmap.errors import InputError, problem
 from stressmap.physics.forces import slab_pull_n_per_m
@@ -184,7 +185,6 @@ def sample_parameter(spec: dict, n: int, rng) -> np.ndarray:
     mean, std = spec["mean"], spec["std"]
     if std == 0:
         return np.full(n, mean)
-    from scipy.stats import truncnorm
 
     a = (spec.get("low", 0.0) - mean) / std
     b = (spec.get("high", math.inf) - mean) / std

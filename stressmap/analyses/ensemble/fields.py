@@ -6,6 +6,7 @@ import json
 import logging
 
 import numpy as np
+import xarray as xr
 
 from stressmap.analyses.ensemble.distributions import (
     DEFAULT_WEIGHT_RANGE,
@@ -139,7 +140,6 @@ def ensemble_points(model, lon, lat, members=1000, distributions=None, seed=0,
         ``s_hmax_mpa`` and ``s_hmin_mpa`` over (point, percentile); member weights as
         ``member_weight`` (member, group).
     """
-    import xarray as xr
 
 
     lon = np.atleast_1d(np.asarray(lon, dtype=float))
@@ -187,7 +187,6 @@ def ensemble_grid(model, bbox, spacing_km, members=1000, distributions=None, see
                           seed, percentiles, weights, progress, **kwargs)
     shape = lat2.shape
     ds = pts.drop_vars(["lon", "lat"])
-    import xarray as xr
 
     out = {}
     for name, var in ds.data_vars.items():
