@@ -1,20 +1,8 @@
-"""Fault files: GIS line traces or strike/dip points, read into plane sets.
+"""Fault files: GIS line traces or strike/dip points (GeoJSON, GeoPackage, shapefile) or CSV
+tables, read into plane sets.
 
-Accepted inputs (one reader for the CLI and the HTTP service):
-
-- GeoJSON ``FeatureCollection`` (a dict, or any file geopandas/pyogrio can read: GeoJSON,
-  GeoPackage, shapefile) whose features are
-
-  * ``LineString`` / ``MultiLineString`` traces with properties ``dip_deg`` and
-    ``dip_direction_deg`` (degrees clockwise from north, or a compass point such as ``"NE"``;
-    optional -- without it the plane dips to the right of the digitised direction), or
-  * ``Point`` features (or features without geometry) with ``strike_deg`` and ``dip_deg``
-    (right-hand rule);
-
-  and optionally ``name``;
-- CSV tables with columns ``strike_deg``, ``dip_deg`` and optionally ``name``, ``lon``, ``lat``.
-
-Errors name the feature or row (1-based) and the field.
+Only the file access lives here; the accepted contents, the parsing and the errors (which name the
+feature or row and the field) are :mod:`stressmap.formats.faults`.
 """
 
 from __future__ import annotations
