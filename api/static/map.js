@@ -244,7 +244,7 @@
     }
     const extra = document.createElement('p');
     extra.className = 'hint';
-    extra.textContent = 'Hollow ticks: measured indicators (outline grows with |misfit|). ' +
+    extra.textContent = 'Hollow ticks: stress indicators (outline grows with |misfit|). ' +
       'Fans: ensemble 1-sigma spread of SHmax.';
     box.appendChild(extra);
   }
