@@ -19,6 +19,11 @@ from stressmap.analyses.sitescreen import (
     parse_site_text,
     screen,
 )
+from stressmap.cli._site import (
+    add_friction_options,
+    add_orientation_options,
+    load_site_model,
+)
 from stressmap.cli.model import parse_weights
 from stressmap.errors import InputError, problem
 from stressmap.formats.gpkg import geojson_to_layer
@@ -32,7 +37,6 @@ from stressmap.formats.screening import (
 from stressmap.io.faults import read_fault_file
 from stressmap.io.files import write_atomic
 from stressmap.io.indicators import read_indicators
-from stressmap.io.networkdir import read_any_model
 from stressmap.io.outputs import (
     write_csv_with_sidecars,
     write_geojson,
@@ -258,12 +262,7 @@ def _run(args) -> int:
     try:
         doc = build_request(args)
         req = parse_request(doc)
-        model = model_info = None
-        if args.model:
-            model = read_any_model(args.model)
-            summary = getattr(model, "summary", {}) or {}
-            model_info = {"directory": str(args.model), "name": summary.get("name"),
-                          "build_time": summary.get("build_time")}
+        model, model_info = load_site_model(args.model)
         result = screen(req, model, model_info)
     except InputError as exc:
         raise _with_flags(exc, flags) from None
@@ -320,12 +319,9 @@ def register(subparsers) -> None:
                    help="a plane, right-hand rule (repeatable)")
     p.add_argument("--json", action="store_true", help="print the result as JSON")
     g = p.add_argument_group("orientation overrides")
-    g.add_argument("--shmax-azimuth-deg", type=float, help="SHmax azimuth, degrees from north")
-    g.add_argument("--regime", choices=["normal", "strike-slip", "reverse"])
-    g.add_argument("--shape-ratio", type=float, help="(S2-S3)/(S1-S3) in [0, 1]")
+    add_orientation_options(g)
     g = p.add_argument_group("site physics")
-    g.add_argument("--friction", type=float, help="friction coefficient (default 0.6)")
-    g.add_argument("--cohesion-mpa", type=float, help="fault cohesion, MPa (default 0)")
+    add_friction_options(g)
     dens = g.add_mutually_exclusive_group()
     dens.add_argument("--density-kg-m3", type=float,
                       help="constant overburden density (default 2450 kg/m^3)")

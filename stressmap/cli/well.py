@@ -20,6 +20,11 @@ from pathlib import Path
 
 from stressmap.analyses import wells
 from stressmap.analyses.sitescreen import parse_plane_text, parse_site_text
+from stressmap.cli._site import (
+    add_friction_options,
+    add_orientation_options,
+    load_site_model,
+)
 from stressmap.cli.model import parse_weights
 from stressmap.cli.screen import parse_pair, read_density_profile
 from stressmap.constants import CAUTION
@@ -28,7 +33,6 @@ from stressmap.formats.table import metadata_json
 from stressmap.formats.wells import csv_table, json_document
 from stressmap.io.faults import read_fault_file
 from stressmap.io.files import write_atomic
-from stressmap.io.modeldir import read_model
 from stressmap.plot import wells as plot_wells
 
 __all__ = ["register", "request_document"]
@@ -179,12 +183,7 @@ def _report(kind: str, doc: dict) -> str:
 def _run(args) -> int:
     kind = args.well_command
     req = wells.parse_well_request(request_document(args))
-    model = model_info = None
-    if args.model:
-        model = read_model(args.model)
-        summary = getattr(model, "summary", {}) or {}
-        model_info = {"directory": str(args.model), "name": summary.get("name"),
-                      "build_time": summary.get("build_time")}
+    model, model_info = load_site_model(args.model)
     result = _RUNS[kind](req, model, model_info)
     doc = json_document(result)
     for target in args.output or []:
@@ -222,11 +221,8 @@ def _site_options(p) -> None:
                    help="write .json, .csv or .png (repeatable)")
     p.add_argument("--json", action="store_true", help="print the result as JSON")
     g = p.add_argument_group("site stress (as in stressmap screen)")
-    g.add_argument("--shmax-azimuth-deg", type=float, help="SHmax azimuth, degrees from north")
-    g.add_argument("--regime", choices=["normal", "strike-slip", "reverse"])
-    g.add_argument("--shape-ratio", type=float, help="(S2-S3)/(S1-S3) in [0, 1]")
-    g.add_argument("--friction", type=float, help="friction coefficient (default 0.6)")
-    g.add_argument("--cohesion-mpa", type=float, help="fault cohesion, MPa (default 0)")
+    add_orientation_options(g)
+    add_friction_options(g)
     dens = g.add_mutually_exclusive_group()
     dens.add_argument("--density-kg-m3", type=float, help="constant overburden density")
     dens.add_argument("--density-profile", metavar="FILE", help="CSV: top_km, density_kg_m3 "
