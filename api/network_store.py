@@ -22,7 +22,12 @@ from flask import current_app
 from stressmap_api.store import check_id, new_id, utc_now
 
 from stressmap.errors import NotFoundError, StorageError
-from stressmap.io.networkdir import build_network, prepare_network, read_network, read_network_model
+from stressmap.io.networkdir import (
+    build_network,
+    prepare_network,
+    read_network,
+    read_network_model,
+)
 
 __all__ = ["NetworkStore", "get_network_store", "build_network_job"]
 

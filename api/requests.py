@@ -22,9 +22,12 @@ from stressmap_api.grids import check_references
 from stressmap_api.problems import ApiProblem
 from stressmap_api.store import document_digest
 
-from stressmap.formats.indicators import indicators_from_csv_text, indicators_from_geojson
 from stressmap import validate
 from stressmap.errors import InputError, problem
+from stressmap.formats.indicators import (
+    indicators_from_csv_text,
+    indicators_from_geojson,
+)
 from stressmap.geo import grid
 from stressmap.model.plate import parse_plate
 from stressmap.model.preflight import check_solvable, estimate_mesh_nodes
@@ -629,10 +632,10 @@ def parse_indicators(body: dict, skip_bad: bool, max_points: int):
 MAX_BOUNDARY_VERTICES = 20_000
 
 
-def _boundary_vertex_count(document) -> int:
-    """Positions in the boundary's LineStrings (0 where the structure is not as expected)."""
-    boundary = document.get("boundary") if isinstance(document, dict) else None
-    feats = boundary.get("features") if isinstance(boundary, dict) else None
+def line_vertex_count(collection) -> int:
+    """Positions in a FeatureCollection's LineStrings (0 where the structure is not as
+    expected): counted before a document is parsed, to refuse oversized uploads cheaply."""
+    feats = collection.get("features") if isinstance(collection, dict) else None
     total = 0
     for feat in feats if isinstance(feats, list) else []:
         geom = feat.get("geometry") if isinstance(feat, dict) else None
@@ -659,7 +662,8 @@ def parse_model_document(document, max_mesh_nodes: int, data_dir=None) -> dict:
         raise InputError("the model's name is too long",
                          [problem(f"{len(name):,} characters; at most {MAX_NAME_CHARS} (put "
                                   "longer text in description)", field="name")])
-    vertices = _boundary_vertex_count(document)
+    vertices = line_vertex_count(document.get("boundary") if isinstance(document, dict)
+                                 else None)
     if vertices > MAX_BOUNDARY_VERTICES:
         # Checked before parsing: validation and meshing grow with the vertex count.
         raise InputError("the model's boundary has too many vertices",

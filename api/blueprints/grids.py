@@ -5,8 +5,8 @@ from __future__ import annotations
 
 from flask import Blueprint, current_app, jsonify, request, url_for
 from stressmap_api.auth import require_token
-from stressmap_api.guards import accepts
 from stressmap_api.grids import DEFAULT_MAX_GRID_CELLS, GridStore
+from stressmap_api.guards import accepts
 from stressmap_api.store import get_store
 
 from stressmap.errors import InputError, problem

@@ -47,23 +47,13 @@ def _links(network_id: str) -> dict:
             "predict": url_for("networks.predict", network_id=network_id)}
 
 
-def _vertex_count(document) -> int:
-    lines = document.get("lines") if isinstance(document, dict) else None
-    feats = lines.get("features") if isinstance(lines, dict) else None
-    total = 0
-    for feat in feats if isinstance(feats, list) else []:
-        geom = feat.get("geometry") if isinstance(feat, dict) else None
-        coords = geom.get("coordinates") if isinstance(geom, dict) else None
-        total += len(coords) if isinstance(coords, list) else 0
-    return total
-
-
 def _check_upload(document) -> None:
     """Size limits first, then every problem of the network and of its plates (422)."""
     if not isinstance(document, dict):
         raise InputError("the request body must be a network document (a JSON object)",
                          [problem(f"got {type(document).__name__}", field="(body)")])
-    n = _vertex_count(document)
+    n = requests.line_vertex_count(document.get("lines") if isinstance(document, dict)
+                                   else None)
     if n > MAX_NETWORK_VERTICES:
         raise InputError("the network has too many line positions",
                          [problem(f"{n:,} positions; this service takes at most "

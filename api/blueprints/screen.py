@@ -8,7 +8,6 @@ Every answer carries the caution.
 
 from __future__ import annotations
 
-
 from flask import Blueprint, current_app, request
 from stressmap_api import requests
 from stressmap_api.limits import run_limited
@@ -16,7 +15,6 @@ from stressmap_api.render import picture_text, respond
 from stressmap_api.store import check_id, get_store
 
 from stressmap.analyses.sitescreen import screen as run_screening
-from stressmap.formats.screening import parse_request_json as parse_request
 from stressmap.formats.screening import (
     LAYERS,
     result_geojson,
@@ -25,6 +23,7 @@ from stressmap.formats.screening import (
     screen_layers,
     screen_meta,
 )
+from stressmap.formats.screening import parse_request_json as parse_request
 from stressmap.formats.table import metadata_headers
 from stressmap.plot import margins as plot_margins
 from stressmap.plot import screening as plot_screening

@@ -21,7 +21,8 @@ import numpy as np
 
 from stressmap.analyses.site_sampling import fault_margins
 from stressmap.errors import InputError, problem
-from stressmap.plot.screening import _png, footer_text
+from stressmap.plot.maps import figure_png
+from stressmap.plot.screening import footer_text
 
 __all__ = ["CURVE_COLOURS", "margin_curves_figure", "margin_curves_png"]
 
@@ -116,4 +117,4 @@ def _side_table(ax, names, reach, threshold, hidden: int) -> None:
 
 def margin_curves_png(result) -> bytes:
     """PNG of :func:`margin_curves_figure`."""
-    return _png(margin_curves_figure(result))
+    return figure_png(margin_curves_figure(result), tight=False)

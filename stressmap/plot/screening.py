@@ -20,7 +20,6 @@ its footer. Geometry follows the textbook constructions:
 
 from __future__ import annotations
 
-import io
 import math
 import textwrap
 
@@ -29,7 +28,13 @@ import numpy as np
 from stressmap.analyses.screening import regime_fields, stress_polygon
 from stressmap.constants import CAUTION
 from stressmap.plot.labels import freeze_layout, place_labels, text_box
-from stressmap.plot.maps import MapWindow, draw_north_arrow, draw_scale_bar, frame_axes
+from stressmap.plot.maps import (
+    MapWindow,
+    draw_north_arrow,
+    draw_scale_bar,
+    figure_png,
+    frame_axes,
+)
 
 __all__ = [
     "mohr_figure", "mohr_png", "polygon_figure", "polygon_png", "fault_map_figure",
@@ -75,11 +80,6 @@ def _add_footer(fig, result):
     fig.text(0.01, 0.01, text, fontsize=6.5, va="bottom", ha="left", color="0.25",
              gid="caution-footer")
 
-
-def _png(fig) -> bytes:
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png")
-    return buf.getvalue()
 
 
 def _margin_norm(margins):
@@ -159,7 +159,7 @@ def _mohr_labels(ax, planes, principal) -> None:
 
 def mohr_png(result) -> bytes:
     """PNG of :func:`mohr_figure`."""
-    return _png(mohr_figure(result))
+    return figure_png(mohr_figure(result), tight=False)
 
 
 def polygon_figure(result):
@@ -248,7 +248,7 @@ def _shade_regime_fields(ax, sv, pp, mu) -> None:
 
 def polygon_png(result) -> bytes:
     """PNG of :func:`polygon_figure`."""
-    return _png(polygon_figure(result))
+    return figure_png(polygon_figure(result), tight=False)
 
 
 def _wrap_lon(lon, centre):
@@ -439,4 +439,4 @@ def _fault_map_note(ax, n_unlocated: int, n_planes: int) -> None:
 
 def fault_map_png(result) -> bytes:
     """PNG of :func:`fault_map_figure`."""
-    return _png(fault_map_figure(result))
+    return figure_png(fault_map_figure(result), tight=False)

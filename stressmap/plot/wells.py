@@ -11,7 +11,6 @@ without colour vision) and a dark-teal / clay pair for the window bounds.
 
 from __future__ import annotations
 
-import io
 import textwrap
 
 import numpy as np
@@ -19,6 +18,7 @@ import numpy as np
 from stressmap.analyses.wells import WELL_NOTE
 from stressmap.constants import CAUTION
 from stressmap.plot.labels import freeze_layout, place_labels
+from stressmap.plot.maps import figure_png
 
 __all__ = ["TENDENCY_COLOURS", "profile_png", "net_png", "window_png", "path_png",
            "profile_figure", "net_figure", "window_figure", "path_figure"]
@@ -50,11 +50,6 @@ def _footer(fig, doc):
     fig.text(0.01, 0.01, text, fontsize=6.5, va="bottom", ha="left", color="0.25",
              gid="caution-footer")
 
-
-def _png(fig) -> bytes:
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png")
-    return buf.getvalue()
 
 
 def _unit(doc) -> tuple[str, str, str]:
@@ -228,16 +223,16 @@ def path_figure(doc):
 
 
 def profile_png(doc) -> bytes:
-    return _png(profile_figure(doc))
+    return figure_png(profile_figure(doc), tight=False)
 
 
 def net_png(doc, which: str = "slip_tendency") -> bytes:
-    return _png(net_figure(doc, which))
+    return figure_png(net_figure(doc, which), tight=False)
 
 
 def window_png(doc) -> bytes:
-    return _png(window_figure(doc))
+    return figure_png(window_figure(doc), tight=False)
 
 
 def path_png(doc) -> bytes:
-    return _png(path_figure(doc))
+    return figure_png(path_figure(doc), tight=False)
