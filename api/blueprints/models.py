@@ -85,10 +85,11 @@ def get_boundary(model_id: str):
     return respond(boundary_geojson(segments, output_meta(meta, weights)), "geojson")
 
 
-def predict_region(model, bbox, spacing_km, polygon=None, weights=None):
-    """Grid prediction over a bbox; nodes outside ``polygon`` (if given) are masked."""
+def predict_region(model, bbox, spacing_km, polygon=None, weights=None, grid=predict_grid):
+    """Grid prediction over a bbox (by ``grid``, e.g. a network's, which adds the plate);
+    nodes outside ``polygon`` (if given) are masked."""
 
-    ds = predict_grid(model, bbox=bbox, spacing_km=spacing_km, weights=weights)
+    ds = grid(model, bbox, spacing_km, weights)
     if polygon is not None:
         ds = mask_dataset(ds, polygon_mask(ds["lon"].values[None, :], ds["lat"].values[:, None],
                                            polygon))

@@ -24,7 +24,7 @@ from stressmap_api.store import get_store
 from stressmap.errors import InputError, NotFoundError, problem
 from stressmap.formats.network_geojson import plates_geojson
 from stressmap.io.networkdir import derive
-from stressmap.model.network_predict import plate_at, predict_network_points
+from stressmap.model.network_predict import predict_network_grid, predict_network_points
 from stressmap.model.preflight import uniform_mesh_nodes
 
 __all__ = ["bp", "init_app", "MAX_NETWORK_VERTICES"]
@@ -173,10 +173,9 @@ def _points(model, lon, lat, weights):
 
 
 def _region(model, bbox, spacing, polygon, weights):
-    ds = predict_region(model, bbox, spacing, polygon, weights)
-    glon, glat = np.meshgrid(ds["lon"].values, ds["lat"].values)
-    names = plate_at(model, (glon.ravel() + 180.0) % 360.0 - 180.0, glat.ravel()).reshape(glon.shape)
-    ds["plate"] = (("lat", "lon"), np.where(ds["inside"].values, names, "").astype(object),
+    ds = predict_region(model, bbox, spacing, polygon, weights, grid=predict_network_grid)
+    ds["plate"] = (("lat", "lon"), np.where(ds["inside"].values, ds["plate"].values,
+                                            "").astype(object),
                    {"long_name": "plate the grid node lies on (empty: on no plate)"})
     return ds
 

@@ -18,7 +18,13 @@ import xarray as xr
 
 from stressmap.errors import InputError, problem
 from stressmap.model.built import BuiltModel
-from stressmap.model.predict import _check_lonlat, locate, predict_grid, predict_points
+from stressmap.model.predict import (
+    _check_lonlat,
+    grid_points,
+    locate,
+    predict_grid,
+    predict_points,
+)
 
 __all__ = ["merge_plates", "plate_at", "predict_network_points", "predict_network_grid"]
 
@@ -99,12 +105,13 @@ def merge_plates(models: dict, name: str = "network") -> BuiltModel:
     return BuiltModel(definition=definition, fields=merged, summary=summary)
 
 
-def plate_at(model: BuiltModel, lon, lat) -> np.ndarray:
+def plate_at(model: BuiltModel, lon, lat, located=None) -> np.ndarray:
     """Name of the plate under each point (object array; ``""`` on no plate).
 
-    A one-plate model answers with its own name inside it.
+    A one-plate model answers with its own name inside it. ``located``: the answer of
+    :func:`~stressmap.model.predict.locate` for these points, when the caller has it.
     """
-    inside, triangle, _ = locate(model, lon, lat)
+    inside, triangle, _ = located if located is not None else locate(model, lon, lat)
     if "element_plate" in model.fields:
         names = np.asarray(model.fields["plate_name"].values, dtype=object)
         which = np.asarray(model.fields["element_plate"].values, np.int64)
@@ -120,16 +127,18 @@ _PLATE_ATTRS = {"long_name": "plate the point lies on (empty: on no plate)"}
 def predict_network_points(model: BuiltModel, lon, lat, weights=None):
     """:func:`~stressmap.model.predict.predict_points` plus the ``plate`` of each point."""
     lon, lat = _check_lonlat(lon, lat)
-    ds = predict_points(model, lon, lat, weights)
-    ds["plate"] = (("point",), plate_at(model, lon, lat), _PLATE_ATTRS)
+    located = locate(model, lon, lat)   # once, for the values and for the plate column
+    ds = predict_points(model, lon, lat, weights, located=located)
+    ds["plate"] = (("point",), plate_at(model, lon, lat, located), _PLATE_ATTRS)
     return ds
 
 
 def predict_network_grid(model: BuiltModel, bbox, spacing_km, weights=None):
     """:func:`~stressmap.model.predict.predict_grid` plus the ``plate`` of each grid node."""
-    ds = predict_grid(model, bbox, spacing_km, weights)
-    glon, glat = np.meshgrid(ds["lon"].values, ds["lat"].values)
-    qlon = (glon.ravel() + 180.0) % 360.0 - 180.0
-    ds["plate"] = (("lat", "lon"), plate_at(model, qlon, glat.ravel()).reshape(glon.shape),
+    lons, lats, qlon, qlat = grid_points(bbox, spacing_km)
+    located = locate(model, qlon, qlat)   # once, for the values and for the plate column
+    ds = predict_grid(model, bbox, spacing_km, weights, located=located)
+    ds["plate"] = (("lat", "lon"), plate_at(model, qlon, qlat, located).reshape(lats.size,
+                                                                             lons.size),
                    _PLATE_ATTRS)
     return ds

@@ -80,16 +80,11 @@ def locate(model: BuiltModel, lon, lat):
     triangle : (P,) int64, -1 outside
     weights : (P, 3) float64, barycentric weights of the facet's vertices (NaN outside)
 
-    The answer to the latest query is kept on the model (a network prediction locates the same
-    points twice: for the values and for the plate column); callers must not modify it.
+    Callers that need the location for more than the stress (a network's plate column) locate
+    once and pass the answer on as ``located``.
     """
     lon, lat = _check_lonlat(lon, lat)
-    last = model._cache.get("last_locate")
-    if last is not None and np.array_equal(last[0], lon) and np.array_equal(last[1], lat):
-        return last[2]
-    answer = _locate(model, lon, lat)
-    model._cache["last_locate"] = (lon.copy(), lat.copy(), answer)
-    return answer
+    return _locate(model, lon, lat)
 
 
 def _locate(model: BuiltModel, lon, lat):
@@ -130,8 +125,9 @@ def _locate(model: BuiltModel, lon, lat):
     return inside, triangle, weights
 
 
-def unit_stress_at(model: BuiltModel, lon, lat):
-    """Unit stress of every load group at points.
+def unit_stress_at(model: BuiltModel, lon, lat, located=None):
+    """Unit stress of every load group at points (``located``: the answer of :func:`locate`
+    for these points, when the caller already has it).
 
     Returns
     -------
@@ -140,7 +136,7 @@ def unit_stress_at(model: BuiltModel, lon, lat):
         (s_ee, s_nn, s_en) in MPa, compression positive, per group at weight 1; NaN outside.
     """
     lon, lat = _check_lonlat(lon, lat)
-    inside, triangle, w = locate(model, lon, lat)
+    inside, triangle, w = located if located is not None else _locate(model, lon, lat)
     xyz, tri, _, _, _, unit_nodes = _geometry(model)
     g = unit_nodes.shape[0]
     out = np.full((g, inside.size, 3), np.nan)
@@ -201,10 +197,10 @@ def resolve_weights(model: BuiltModel, weights=None) -> np.ndarray:
     return out
 
 
-def stress_at(model: BuiltModel, lon, lat, weights=None):
+def stress_at(model: BuiltModel, lon, lat, weights=None, located=None):
     """Combined stress (P, 3) (s_ee, s_nn, s_en) MPa compression positive and ``inside`` (P,)."""
     w = resolve_weights(model, weights)
-    inside, unit = unit_stress_at(model, lon, lat)
+    inside, unit = unit_stress_at(model, lon, lat, located)
     return inside, np.einsum("g,gpc->pc", w, unit)
 
 
@@ -232,16 +228,17 @@ def _derived(s):
     }
 
 
-def predict_points(model: BuiltModel, lon, lat, weights=None):
+def predict_points(model: BuiltModel, lon, lat, weights=None, located=None):
     """Predicted stress at points as an xarray Dataset with dimension ``point``.
 
     Variables: lon, lat, inside, s_ee_mpa, s_nn_mpa, s_en_mpa, s_hmax_mpa, s_hmin_mpa,
     shmax_azimuth_deg, regime (str), regime_index (A-phi), shape_ratio, max_shear_mpa.
     Points outside the plate have ``inside = False``, NaN values and regime "".
+    ``located`` is the answer of :func:`locate` for these points, when the caller has it.
     """
 
     lon, lat = _check_lonlat(lon, lat)
-    inside, s = stress_at(model, lon, lat, weights)
+    inside, s = stress_at(model, lon, lat, weights, located)
     d = _derived(s)
     d["regime"] = np.where(inside, d["regime"], "").astype(object)
     data = {"lon": (("point",), lon, {"standard_name": "longitude", "units": "degrees_east"}),
@@ -268,21 +265,28 @@ def _output_attrs(model, weights):
     }
 
 
-def predict_grid(model: BuiltModel, bbox, spacing_km, weights=None):
+def grid_points(bbox, spacing_km):
+    """Axes of the prediction grid and its nodes in row-major order, longitudes in [-180, 180)
+    (the points :func:`predict_grid` evaluates)."""
+    lons, lats = regular_grid(bbox, spacing_km, max_nodes=MAX_GRID_POINTS)
+    glon, glat = np.meshgrid(lons, lats)
+    return lons, lats, wrap_lon(glon.ravel()), glat.ravel()
+
+
+def predict_grid(model: BuiltModel, bbox, spacing_km, weights=None, located=None):
     """Predicted stress on a regular lon/lat grid as a CF-1.8 xarray Dataset (dims lat, lon).
 
     ``bbox = (W, S, E, N)`` in degrees (W > E crosses the antimeridian; longitudes then run
     past 180 so that they stay increasing); ``spacing_km`` is the node spacing along a meridian,
     and along the parallel through the middle of the box. The grid and its rules (W == E
     refused, -180..180 or 0..360 longitudes, at most ``MAX_GRID_POINTS`` nodes) are those of
-    :func:`stressmap.geo.grid.regular_grid`.
+    :func:`stressmap.geo.grid.regular_grid`. ``located``: the answer of :func:`locate` for the
+    nodes of :func:`grid_points`, when the caller has it.
     """
 
-    lons, lats = regular_grid(bbox, spacing_km, max_nodes=MAX_GRID_POINTS)
+    lons, lats, qlon, qlat = grid_points(bbox, spacing_km)
     n_lat, n_lon = lats.size, lons.size
-    glon, glat = np.meshgrid(lons, lats)
-    qlon = wrap_lon(glon.ravel())
-    inside, s = stress_at(model, qlon, glat.ravel(), weights)
+    inside, s = stress_at(model, qlon, qlat, weights, located)
     d = _derived(s)
     d["regime"] = np.where(inside, d["regime"], "").astype(object)
     data = {"inside": (("lat", "lon"), inside.reshape(n_lat, n_lon),
